@@ -1,0 +1,1 @@
+"""The `rhledger` command line: thin click commands over the library packages."""
