@@ -1,0 +1,4 @@
+"""Blueprint placeholder (to be filled in by its owner)."""
+from flask import Blueprint
+
+bp = Blueprint("card", __name__)
