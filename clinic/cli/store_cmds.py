@@ -1,6 +1,227 @@
-"""Commands of this group (to be filled in)."""
+"""Store commands: init, backup, restore, check, list. Thin over clinic.store."""
+from __future__ import annotations
+
+import json
+import tomllib
+from datetime import date
+from pathlib import Path
+
 import click
+
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
+from clinic.records.validate import ValidationError
+from clinic.store import Store, StoreError
+from clinic.store.backup import sha256_file
+from clinic.store.storage import atomic_write_bytes, ensure_dir
+
+try:  # the signing package's errors are library errors too
+    from clinic.signing.errors import SigningError as _SigningError
+except ImportError:  # pragma: no cover - while the signing package is being written
+    class _SigningError(Exception):
+        pass
+
+LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, _SigningError, OSError)
+
+
+def _toml_str(s: str) -> str:
+    # A JSON string (ASCII, escaped) is a valid TOML basic string.
+    return json.dumps(str(s), ensure_ascii=True)
+
+
+def config_text(*, facility_id: str, facility_name: str, kind: str, phone: str, district: str,
+                timezone: str, profile: str, username: str, role: str, password_hash: str,
+                keep: int = 14) -> str:
+    """The config.toml that `init` writes, with comments for the facility to review."""
+    q = _toml_str
+    return f"""\
+# rhledger settings, written by `rhledger init` on {date.today().isoformat()}. Review every value.
+
+[facility]
+id = {q(facility_id)}
+name = {q(facility_name)}
+kind = {q(kind)}               # clinic, hospital or district
+phone = {q(phone)}
+district = {q(district)}
+timezone = {q(timezone)}       # IANA time zone; times are stored in UTC and shown in this zone
+
+[care]
+profile = {q(profile)}         # protocol profile (see `rhledger --help` for the list)
+# Share of the local population that is RhD negative (0-1): set it from local data.
+rhd_negative_frequency = 0.15
+# Default maternal blood volume for FMH dose calculation (mL).
+maternal_blood_volume_ml = 5000
+
+[stock]
+# The anti-D products this facility stocks: edit to match the vials on the shelf.
+products = [
+  {{ name = "Anti-D immunoglobulin 1500 IU (300 ug)", vial_iu = 1500, routes = ["IM", "IV"] }},
+  {{ name = "Anti-D immunoglobulin 1250 IU (250 ug)", vial_iu = 1250, routes = ["IM"] }},
+]
+
+[backup]
+keep = {int(keep)}                      # how many daily backups to keep in <data>/backups
+
+[[accounts]]
+username = {q(username)}
+display_name = {q(username)}
+role = {q(role)}
+password_hash = {q(password_hash)}
+"""
+
+
+def _open(data: Path | None) -> Store:
+    return Store(resolve_data(data))
+
+
+@click.command("init")
+@data_option
+@click.option("--facility-id", required=True, help="Short facility ID: 1-32 letters, digits, '-' or '_'.")
+@click.option("--facility-name", default=None, help="Facility name as printed (default: the ID).")
+@click.option("--kind", type=click.Choice(FACILITY_KINDS), default="clinic", show_default=True,
+              help="What this installation is.")
+@click.option("--phone", default="", help="Facility phone number, printed on cards.")
+@click.option("--district", default="", help="District name.")
+@click.option("--timezone", default="UTC", show_default=True, help="IANA time zone, e.g. Africa/Nairobi.")
+@click.option("--profile", default="bsh-2014", show_default=True, help="Protocol profile.")
+@click.option("--user", "username", default="admin", show_default=True, help="User name of the first account.")
+@click.option("--role", type=click.Choice(ROLES), default="admin", show_default=True, help="Role of that account.")
+@click.option("--password", default=None, help="Its password (prompted, hidden, when not given).")
+@clean_errors(*LIBRARY_ERRORS)
+def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, profile, username, role,
+             password):
+    """Create a data directory: config.toml, an empty store and the facility signing key.
+
+    Refuses to touch a directory that already has a config.toml.
+    """
+    from werkzeug.security import generate_password_hash
+
+    from clinic.signing.keys import ensure_facility_key
+
+    data_dir = resolve_data(data)
+    cfg = data_dir / CONFIG_FILE
+    if cfg.exists():
+        fail(f"{cfg} already exists; init never overwrites a configuration. "
+             f"Edit it, or choose another directory with --data DIR")
+    if not username.strip():
+        fail("--user: give a user name")
+    if password is None:
+        password = click.prompt(f"Password for {username}", hide_input=True, confirmation_prompt=True)
+    if len(password) < 8:
+        fail("--password: use at least 8 characters")
+    text = config_text(facility_id=facility_id, facility_name=facility_name or facility_id, kind=kind,
+                       phone=phone, district=district, timezone=timezone, profile=profile,
+                       username=username.strip(), role=role, password_hash=generate_password_hash(password))
+    settings = parse_settings(tomllib.loads(text), str(cfg))  # every value checked before anything is written
+    ensure_dir(data_dir)
+    key = ensure_facility_key(data_dir, settings.facility_id)
+    atomic_write_bytes(cfg, text.encode("utf-8"))
+    Store(data_dir, settings=settings)
+    click.echo(f"Created {data_dir} for {settings.facility_name} ({settings.facility_id}).")
+    click.echo(f"Settings: {cfg} (review the [care] and [stock] values).")
+    click.echo(f"Facility signing key fingerprint: {key.fingerprint}")
+    click.echo("Give this fingerprint to the district office so they can trust this facility's cards.")
+
+
+@click.command("backup")
+@data_option
+@clean_errors(*LIBRARY_ERRORS)
+def backup_cmd(data):
+    """Write a checksummed backup of the store into <data>/backups (keeps the newest N)."""
+    store = _open(data)
+    path = store.backup()
+    click.echo(f"Backup written: {path}")
+    click.echo(f"SHA-256: {sha256_file(path)}")
+
+
+@click.command("restore")
+@click.argument("backup_file", type=click.Path(dir_okay=False, path_type=Path))
+@data_option
+@click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@clean_errors(*LIBRARY_ERRORS)
+def restore_cmd(backup_file, data, yes):
+    """Replace the store by BACKUP_FILE after verifying its checksums.
+
+    A safety backup of the current files is made first. Stop the server before restoring.
+    """
+    data_dir = resolve_data(data)
+    if not yes:
+        click.confirm(f"Replace the records in {data_dir} by {backup_file}?", abort=True)
+    result = Store.restore(data_dir, backup_file)
+    for note in result["notes"]:
+        click.echo(f"Note: {note}")
+    click.echo(f"Checksums verified; restored {backup_file} (made {result['info'].get('created_at', '?')}).")
+    if result["safety_backup"]:
+        click.echo(f"The files it replaced are kept in {result['safety_backup']}")
+    Store(data_dir)  # opens (and migrates) the restored store: proves it reads
+
+
+@click.command("check")
+@data_option
+@click.option("--json", "as_json", is_flag=True, help="Print the report as JSON.")
+@clean_errors(*LIBRARY_ERRORS)
+def check_cmd(data, as_json):
+    """Verify the store: files parse, index consistent, records valid, parents exist, audit readable.
+
+    Exits non-zero when it finds a problem.
+    """
+    store = _open(data)
+    rep = store.check()
+    if as_json:
+        emit_json({"ok": rep.ok, "partitions": rep.partitions, "audit_lines": rep.audit_lines,
+                   "counts": rep.counts, "problems": rep.problems, "notes": rep.notes})
+    else:
+        total = sum(sum(k.values()) for k in rep.counts.values())
+        click.echo(f"{store.data_dir}: {total} records in {rep.partitions} partition files, "
+                   f"{rep.audit_lines} audit lines")
+        for fac in sorted(rep.counts):
+            kinds = ", ".join(f"{k} {n}" for k, n in sorted(rep.counts[fac].items()))
+            click.echo(f"  {fac}: {kinds}")
+        for n in rep.notes:
+            click.echo(f"note: {n}")
+        for p in rep.problems:
+            click.echo(f"PROBLEM: {p}")
+        click.echo("OK" if rep.ok else f"{len(rep.problems)} problem(s) found")
+    if not rep.ok:
+        raise SystemExit(1)
+
+
+def latest_rhd(entries: list[dict]) -> str | None:
+    """The RhD of the latest (not voided) typing of the woman, or None when untyped."""
+    typings = [e for e in entries if e["kind"] == "typing" and not e.get("voided")]
+    if not typings:
+        return None
+    return max(typings, key=lambda e: (e.get("tested_on", ""), e["created_at"]))["rhd"]
+
+
+@click.command("list")
+@data_option
+@click.option("--facility", default=None, help="Only pregnancies of this facility ID.")
+@click.option("--status", default=None, help="Only this status (ongoing, delivered, ...).")
+@click.option("--json", "as_json", is_flag=True, help="Print a JSON array.")
+@clean_errors(*LIBRARY_ERRORS)
+def list_cmd(data, facility, status, as_json):
+    """List pregnancies, one line each: booking, woman, RhD, status."""
+    store = _open(data)
+    rows = []
+    for p in store.pregnancies(facility=facility, status=status):
+        woman = store.get(p["woman_id"]) or {}
+        rows.append({"pregnancy_id": p["id"], "woman_id": p["woman_id"], "name": woman.get("name"),
+                     "register_no": woman.get("register_no"), "facility": p["facility"],
+                     "booked_on": p.get("booked_on"), "edd": p.get("edd"),
+                     "rhd": latest_rhd(store.entries(p["id"])), "status": p.get("status"),
+                     "voided": bool(p.get("voided"))})
+    if as_json:
+        emit_json(rows)
+        return
+    if not rows:
+        click.echo("No pregnancies.")
+    for r in rows:
+        click.echo(f"{r['booked_on']}  {r['facility']:<12} {r['name'] or '?':<28} "
+                   f"RhD {r['rhd'] or 'untyped':<12} {r['status']:<18} {r['pregnancy_id']}"
+                   + ("  [voided]" if r["voided"] else ""))
 
 
 def register(cli: click.Group) -> None:
-    pass
+    for cmd in (init_cmd, backup_cmd, restore_cmd, check_cmd, list_cmd):
+        cli.add_command(cmd)

@@ -186,7 +186,8 @@ _kind(Kind("screen", "Antibody screen (IAT)", "pregnancy", (
 ), cross_checks=("screen_consistency",)))
 
 _kind(Kind("event", "Sensitising event", "pregnancy", (
-    Field("kind", "choice", "Event", required=True, choices=EVENT_KINDS),
+    # Not "kind": that name is the envelope's record kind (a stored record is flat).
+    Field("event_kind", "choice", "Event", required=True, choices=EVENT_KINDS),
     Field("occurred_at", "datetime", "When it happened", required=True),
     _ga(),
     Field("ongoing", "bool", "Bleeding continues (intermittent or ongoing)"),

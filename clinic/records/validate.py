@@ -46,6 +46,9 @@ def _empty(v: Any) -> bool:
 def _range_text(f: Field) -> str:
     if f.type == "ga":
         return f"{format_ga(int(f.min))} to {format_ga(int(f.max))} weeks+days"
+    if f.min is not None and 0 < f.min < 0.001:
+        # A "positive number" field: its tiny minimum is not a value anyone should read.
+        return "above 0" + ("" if f.max is None else f" and at most {f.max:g}")
     lo = "" if f.min is None else f"{f.min:g}"
     hi = "" if f.max is None else f"{f.max:g}"
     return f"{lo} to {hi}"
@@ -95,6 +98,8 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
             raise ValueError(f"{format_ga(days)} is outside the allowed range {_range_text(f)}")
         return days
     if t == "choice":
+        if isinstance(v, bool):  # True == 1 in Python: never a titre of 1:1
+            raise ValueError(f"{v!r} is not one of: {', '.join(str(c) for c in f.choices)}")
         for c in f.choices:
             if v == c or str(v).strip() == str(c):
                 return c
@@ -117,8 +122,13 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
         elif isinstance(v, date):
             d = v
         else:
+            text = str(v).strip()
             try:
-                d = date.fromisoformat(str(v).strip()[:10])
+                if len(text) > 10 and text[10] in "T ":
+                    # A date and time given for a date: the date as written (the time must parse too).
+                    datetime.fromisoformat(text.replace("Z", "+00:00").replace(" ", "T", 1))
+                    text = text[:10]
+                d = date.fromisoformat(text)
             except ValueError:
                 raise ValueError(f"{v!r} is not a date (YYYY-MM-DD)") from None
         if f.not_future and d > (now.astimezone(tz) + CLOCK_SKEW).date():

@@ -1,0 +1,61 @@
+"""The audit trail: one JSON line per create, amend, void and import, never rewritten.
+
+Files: ``<data>/audit/<facility>/<YYYY-MM>.jsonl`` by the record's facility and the UTC
+month of the change, so each file stays small and an append touches one file only.
+"""
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Iterator
+
+from clinic.store.storage import append_line
+
+
+class AuditLog:
+    def __init__(self, root: Path, on_corrupt):
+        self.root = Path(root)
+        self._on_corrupt = on_corrupt
+
+    def path_for(self, facility: str, at: str) -> Path:
+        return self.root / facility / f"{at[:7]}.jsonl"
+
+    def append(self, entry: dict) -> None:
+        line = json.dumps(entry, ensure_ascii=False, separators=(",", ":"), sort_keys=True)
+        append_line(self.path_for(entry["facility"], entry["at"]), line)
+
+    def files(self) -> list[Path]:
+        if not self.root.is_dir():
+            return []
+        return sorted(self.root.glob("*/*.jsonl"))
+
+    def read(self, path: Path, needle: bytes | None = None) -> Iterator[dict]:
+        raw = Path(path).read_bytes()
+        if needle is not None and needle not in raw:
+            return
+        lines = raw.split(b"\n")
+        # The last piece is b"" after a complete file, or a torn line from a crash: not a record.
+        for n, line in enumerate(lines[:-1], 1):
+            if not line.strip() or (needle is not None and needle not in line):
+                continue
+            try:
+                yield json.loads(line)
+            except ValueError as e:
+                raise self._on_corrupt(path, ValueError(f"line {n}: {e}")) from None
+
+    def entries(self, record_id: str | None = None, since: str | None = None) -> list[dict]:
+        """Lines oldest first, optionally of one record and/or at or after ``since``."""
+        out = []
+        # Files and lines that do not hold the id as a JSON string are skipped unparsed.
+        needle = json.dumps(record_id).encode() if record_id is not None else None
+        for path in self.files():
+            if since and path.stem < since[:7]:
+                continue
+            for e in self.read(path, needle):
+                if record_id is not None and e.get("id") != record_id:
+                    continue
+                if since is not None and e.get("at", "") < since:
+                    continue
+                out.append(e)
+        out.sort(key=lambda e: (e.get("at", ""), e.get("seq", 0)))
+        return out
