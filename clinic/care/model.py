@@ -1,0 +1,118 @@
+"""What a plan is made of: CareContext (facility facts), PlanItem, Alert, Plan."""
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+from datetime import date, datetime, timezone, tzinfo
+from typing import Any
+
+from clinic.config import Product
+from clinic.records.validate import utc_text
+
+STATES = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
+CATEGORIES = ("typing", "screen", "routine", "event", "postpartum", "birth", "surveillance")
+PATHWAYS = ("prophylaxis", "not-needed", "surveillance", "retest", "untyped", "ended")
+SEVERITIES = ("danger", "warning", "info")
+
+
+@dataclass(frozen=True)
+class CareContext:
+    """Facility facts the rules need: population RhD-negative frequency, default maternal
+    blood volume, stocked products, and the facility time zone (for days and GA)."""
+
+    rhd_negative_frequency: float = 0.15
+    maternal_blood_volume_ml: float = 5000.0
+    products: tuple[Product, ...] = ()
+    tz: tzinfo = timezone.utc
+
+    @classmethod
+    def from_settings(cls, settings) -> "CareContext":
+        return cls(settings.rhd_negative_frequency, settings.maternal_blood_volume_ml,
+                   tuple(settings.products), settings.tz)
+
+
+def _dt(v):
+    if isinstance(v, datetime):
+        return utc_text(v)
+    if isinstance(v, date):
+        return v.isoformat()
+    return v
+
+
+@dataclass
+class PlanItem:
+    code: str
+    category: str
+    title: str
+    state: str
+    reason: str
+    source: str
+    due: datetime | None = None
+    opens: datetime | None = None
+    closes: datetime | None = None
+    late_until: datetime | None = None
+    dose_iu: int | None = None
+    related_id: str | None = None
+    done_record_id: str | None = None
+    done_at: datetime | None = None
+    timeliness: str | None = None
+
+    @property
+    def dose_ug(self) -> float | None:
+        return None if self.dose_iu is None else self.dose_iu / 5
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "code": self.code, "category": self.category, "title": self.title, "state": self.state,
+            "due": _dt(self.due), "opens": _dt(self.opens), "closes": _dt(self.closes),
+            "late_until": _dt(self.late_until), "dose_iu": self.dose_iu, "dose_ug": self.dose_ug,
+            "reason": self.reason, "source": self.source, "related_id": self.related_id,
+            "done_record_id": self.done_record_id, "done_at": _dt(self.done_at), "timeliness": self.timeliness,
+        }
+
+
+@dataclass
+class Alert:
+    code: str
+    severity: str
+    message: str
+    source: str
+    record_ids: list[str] = field(default_factory=list)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"code": self.code, "severity": self.severity, "message": self.message, "source": self.source,
+                "record_ids": list(self.record_ids)}
+
+
+@dataclass
+class Plan:
+    profile_id: str
+    profile_version: str
+    now: datetime
+    dating: dict[str, Any]
+    rhd: dict[str, Any]
+    pathway: str
+    fetal_rhd_probability: float | None
+    fetal_rhd: dict[str, Any]
+    items: list[PlanItem]
+    alerts: list[Alert]
+    caution: str
+    antibodies: list[dict[str, Any]] = field(default_factory=list)
+
+    def item(self, code: str) -> PlanItem | None:
+        for it in self.items:
+            if it.code == code:
+                return it
+        return None
+
+    def alerts_with(self, code: str) -> list[Alert]:
+        return [a for a in self.alerts if a.code == code]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "profile_id": self.profile_id, "profile_version": self.profile_version, "now": _dt(self.now),
+            "dating": {k: _dt(v) for k, v in self.dating.items()}, "rhd": dict(self.rhd),
+            "pathway": self.pathway, "fetal_rhd_probability": self.fetal_rhd_probability,
+            "fetal_rhd": dict(self.fetal_rhd), "antibodies": [dict(a) for a in self.antibodies],
+            "items": [i.to_dict() for i in self.items], "alerts": [a.to_dict() for a in self.alerts],
+            "caution": self.caution,
+        }

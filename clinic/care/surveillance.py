@@ -1,0 +1,180 @@
+"""The surveillance pathway: a woman with red cell antibodies (immune anti-D, anti-c, anti-K ...).
+
+Titres and quantitation against the profile's critical levels, the titre trend, follow-up
+intervals, referral, MCA Doppler (Mari 2000 MoM) and fetal Hb. Every next step is a
+suggestion with its source, for a specialist to decide.
+"""
+from __future__ import annotations
+
+import math
+from datetime import date, timedelta
+
+from clinic.care import calc
+from clinic.records.validate import parse_utc
+
+
+def antibody_risk(name: str, titre, iu_ml, profile) -> dict:
+    """Is this antibody level critical (refer)? By quantitation where the profile uses it, else titre."""
+    s = profile.get("surveillance")
+    crit = s["critical_titre"].get(name, s["critical_titre"]["other"])
+    q = s["quantitation"].get(name) if s["use_quantitation"] else None
+    if q is not None and iu_ml is not None:
+        if iu_ml > q["high_iu_ml"]:
+            return {"critical": True, "level": "high", "by": "quantitation",
+                    "text": f"{name} {iu_ml:g} IU/mL, above {q['high_iu_ml']:g}: high risk of HDFN — refer urgently"}
+        if iu_ml >= q["moderate_iu_ml"]:
+            return {"critical": True, "level": "moderate", "by": "quantitation",
+                    "text": f"{name} {iu_ml:g} IU/mL ({q['moderate_iu_ml']:g} to {q['high_iu_ml']:g}): moderate "
+                            f"risk — refer to fetal medicine"}
+        return {"critical": False, "level": "low", "by": "quantitation",
+                "text": f"{name} {iu_ml:g} IU/mL, below {q['moderate_iu_ml']:g}: low risk — keep monitoring"}
+    if crit <= 1:
+        return {"critical": True, "level": "any", "by": "presence",
+                "text": f"{name} at any titre: refer to fetal medicine (the profile refers on detection)"}
+    if titre is None:
+        return {"critical": False, "level": "unknown", "by": "none",
+                "text": f"{name} found without a titre: ask the laboratory for a titre"}
+    if titre >= crit:
+        return {"critical": True, "level": "critical", "by": "titre",
+                "text": f"{name} titre 1:{titre}, at or above the critical titre 1:{crit}: refer to fetal medicine"}
+    return {"critical": False, "level": "below-critical", "by": "titre",
+            "text": f"{name} titre 1:{titre}, below the critical titre 1:{crit}: repeat titres"}
+
+
+def titre_rise(previous: int, latest: int, dilutions: int) -> bool:
+    """A rise of ``dilutions`` doubling dilutions or more (2 = four-fold) is significant."""
+    return latest > 0 and previous > 0 and math.log2(latest / previous) >= dilutions - 1e-9
+
+
+def surveillance_items(pl) -> None:
+    p, tz, now = pl.p, pl.tz, pl.now
+    s = p.get("surveillance")
+    src = p.section_source("surveillance")
+    findings = [f for f in (pl.ab.findings or []) if f["origin"] == "immune"]
+    if not findings:
+        return
+    screens = {x["id"]: x for x in pl.h.of("screen")}
+    by_ab: dict[str, list[dict]] = {}
+    for f in findings:
+        by_ab.setdefault(f["antibody"], []).append(f)
+    critical_at = None
+    critical_ids: list[str] = []
+    last_sample = None
+    for name, fs in sorted(by_ab.items()):
+        fs.sort(key=lambda f: (f["sampled_at"], f["screen_id"]))
+        latest = fs[-1]
+        risk = antibody_risk(name, latest.get("titre"), latest.get("iu_ml"), p)
+        latest["risk"] = risk
+        t = parse_utc(latest["sampled_at"])
+        last_sample = t if last_sample is None or t > last_sample else last_sample
+        for f in fs:
+            r = antibody_risk(name, f.get("titre"), f.get("iu_ml"), p)
+            if r["critical"]:
+                ft = parse_utc(f["sampled_at"])
+                if critical_at is None or ft < critical_at:
+                    critical_at = ft
+                critical_ids.append(f["screen_id"])
+                break
+        pl.alert("antibody-found" if not risk["critical"] else "antibody-critical",
+                 "warning" if not risk["critical"] else "danger", risk["text"], src, [latest["screen_id"]])
+        titres = [(f["sampled_at"], f["titre"], f["screen_id"]) for f in fs if f.get("titre")]
+        if len(titres) >= 2:
+            (_, a, ida), (_, b, idb) = titres[-2], titres[-1]
+            if titre_rise(a, b, s["significant_rise_dilutions"]):
+                pl.alert("titre-rise", "warning",
+                         f"{name} titre rose from 1:{a} to 1:{b} ({int(round(math.log2(b / a)))} dilutions): a rise of "
+                         f"{s['significant_rise_dilutions']} dilutions or more is significant — discuss with fetal "
+                         f"medicine", src, [ida, idb])
+    born = pl.born_at
+    # repeat titres / quantitation until critical
+    if critical_at is None and last_sample is not None:
+        ga_last = pl.dating.ga_days(last_sample, tz)
+        change = pl.at_ga(p.ga("surveillance.interval_change_ga"))
+        if ga_last < p.ga("surveillance.interval_change_ga"):
+            due = min(last_sample + timedelta(days=s["titre_interval_days_early"]),
+                      max(change, last_sample + timedelta(days=s["titre_interval_days_late"])))
+        else:
+            due = last_sample + timedelta(days=s["titre_interval_days_late"])
+        it = pl.add(code="surveillance-titre", category="surveillance", title="Repeat antibody titre / quantitation",
+                    state="due", due=due, opens=due - timedelta(days=3), closes=due + timedelta(days=7),
+                    late_until=None, reason="", source=src)
+        if born:
+            it.state, it.reason = "not-needed", "the baby is born; follow the baby for HDFN"
+        else:
+            it.state = _open_state(now, it.opens, it.closes)
+            it.reason = (f"repeat every {s['titre_interval_days_early'] // 7} weeks until "
+                         f"{p.get('surveillance.interval_change_ga')}, then every "
+                         f"{s['titre_interval_days_late'] // 7} weeks (last sample {last_sample.astimezone(tz):%Y-%m-%d})")
+    elif critical_at is not None:
+        it = pl.add(code="surveillance-referral", category="surveillance", title="Referral to fetal medicine",
+                    state="due", due=critical_at, opens=critical_at, closes=critical_at + timedelta(days=7),
+                    late_until=None, reason="critical antibody level: refer to a fetal medicine unit (common practice: "
+                                            "within a week)", source=src)
+        refs = [r for r in pl.h.of("referral")
+                if date.fromisoformat(r["referred_on"]) >= critical_at.astimezone(tz).date()]
+        if refs:
+            it.state, it.done_record_id = "done", refs[0]["id"]
+            it.done_at = pl.h.time[refs[0]["id"]]
+            it.timeliness = "on-time" if it.done_at <= it.closes else "late"
+            it.reason = f"referred to {refs[0].get('to_facility')}"
+        elif born:
+            it.state, it.reason = "not-needed", "the baby is born"
+        else:
+            it.state = _open_state(now, it.opens, it.closes)
+        # titres are no longer the guide once critical
+        pl.add(code="surveillance-titre", category="surveillance", title="Repeat antibody titre / quantitation",
+               state="not-needed", reason="the critical level is reached: MCA Doppler, not titres, guides care",
+               source=src)
+        opens = max(critical_at, pl.at_ga(p.ga("surveillance.doppler_from_ga")))
+        dops = [d for d in pl.h.of("doppler") if parse_utc(d["measured_at"]) >= critical_at]
+        interval = timedelta(days=s["doppler_interval_days"])
+        due = parse_utc(dops[-1]["measured_at"]) + interval if dops else opens
+        dit = pl.add(code="surveillance-doppler", category="surveillance", title="MCA Doppler (peak systolic velocity)",
+                     state="due", due=due, opens=min(due, max(opens, due - timedelta(days=2))),
+                     closes=due + interval, late_until=None, reason="", source=src)
+        if born:
+            dit.state, dit.reason = "not-needed", "the baby is born"
+        else:
+            dit.state = _open_state(now, dit.opens, dit.closes)
+            dit.reason = (f"MCA-PSV every {s['doppler_interval_days']} days from "
+                          f"{p.get('surveillance.doppler_from_ga')} (suggestion for the fetal medicine team)")
+        if not born:
+            pl.alert("delivery-timing", "info", f"suggestion for the specialist: {s['delivery_text']}", src, critical_ids[:1])
+    # latest Doppler and fetal blood results
+    dops = pl.h.of("doppler")
+    if dops:
+        d = dops[-1]
+        t = parse_utc(d["measured_at"])
+        ga = pl.ga_of(d, t)
+        if calc.MCA_GA_MIN_DAYS <= ga <= calc.MCA_GA_MAX_DAYS:
+            r = calc.mca_result(d["mca_psv_cm_s"], ga, p)
+            sev = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}[r["severity"]]
+            pl.alert("mca-psv", sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom']:.2f} MoM "
+                                     f"(median {r['median_cm_s']:.1f}; {r['severity']}): {r['suggestion']}",
+                     r["source"], [d["id"]])
+            it = pl.item("surveillance-doppler")
+            if it is not None and it.state != "not-needed":
+                it.reason += f"; last {r['mom']:.2f} MoM — {r['suggestion']}"
+    fbs = [f for f in pl.h.of("fbs") if f.get("hb_g_dl") is not None]
+    if fbs:
+        f = fbs[-1]
+        t = parse_utc(f["sampled_at"])
+        ga = pl.ga_of(f, t)
+        if calc.HB_GA_MIN_DAYS <= ga <= calc.HB_GA_MAX_DAYS:
+            r = calc.fetal_hb_result(f["hb_g_dl"], ga, p)
+            sev = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}[r["severity"]]
+            pl.alert("fetal-hb", sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom']:.2f} MoM "
+                                      f"({r['severity']} anaemia by Mari 2000 classes): for the fetal medicine team",
+                     r["source"], [f["id"]])
+    if born:
+        pl.alert("neonatal-follow-up", "warning",
+                 "maternal red cell antibodies: check the baby's DAT, Hb and bilirubin after birth (HDFN risk)",
+                 src, [pl.birth["id"]])
+
+
+def _open_state(now, opens, closes) -> str:
+    if now < opens:
+        return "not-yet-due"
+    if now <= closes:
+        return "due"
+    return "overdue"

@@ -1,0 +1,24 @@
+"""clinic.care imports neither Flask nor TinyDB nor anything of clinic.store or clinic.web."""
+import pkgutil
+import subprocess
+import sys
+
+import clinic.care
+
+
+def test_engine_imports_no_web_or_storage():
+    mods = [f"clinic.care.{m.name}" for m in pkgutil.iter_modules(clinic.care.__path__)]
+    code = ("import sys\n"
+            + "".join(f"import {m}\n" for m in mods)
+            + "from clinic.care import plan_pregnancy, load_profile\n"
+            + "bad = [m for m in sys.modules if m.split('.')[0] in ('flask', 'tinydb', 'werkzeug')"
+              " or m.startswith(('clinic.store', 'clinic.web', 'clinic.card', 'clinic.reports'))]\n"
+            + "print(','.join(bad))\n")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
+    assert out.stdout.strip() == ""
+
+
+def test_records_and_care_import_in_either_order():
+    for first in ("clinic.records.validate", "clinic.care"):
+        code = f"import {first}\nfrom clinic.care import plan_pregnancy\nfrom clinic.records.validate import validate_record\n"
+        subprocess.run([sys.executable, "-c", code], check=True)
