@@ -1,0 +1,81 @@
+"""The Flask app: pages for the clinic laptop and phones, and the JSON API under /api/v1.
+
+``create_app`` owns configuration (data directory, settings, secret key, the one Store per
+app) and registers every blueprint. Pages and API live in small modules beside this one.
+"""
+from __future__ import annotations
+
+import importlib
+import importlib.util
+import os
+import secrets
+from datetime import timedelta
+from pathlib import Path
+
+from flask import Flask
+
+from clinic.config import data_dir_from, load_settings
+
+STATIC_DIR = Path(__file__).resolve().parents[2] / "static"
+SECRET_KEY_FILE = "secret_key"
+
+
+def _secret_key(data_dir: Path) -> str:
+    """Made once per installation and kept in <data>/secret_key, readable by the owner only."""
+    path = data_dir / SECRET_KEY_FILE
+    if path.exists():
+        key = path.read_text(encoding="ascii").strip()
+        if len(key) < 32:
+            raise RuntimeError(f"{path} holds a key shorter than 32 characters; delete it to make a new one")
+        return key
+    key = secrets.token_hex(32)
+    fd = os.open(path, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+    with os.fdopen(fd, "w", encoding="ascii") as fh:
+        fh.write(key + "\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+    return key
+
+
+def create_app(data_dir=None, test_config=None) -> Flask:
+    """Build the app for one data directory (argument, else $RHLEDGER_DATA, else ./instance)."""
+    from clinic.store import Store
+
+    app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
+    data = data_dir_from(data_dir or (test_config or {}).get("DATA_DIR")).resolve()
+    app.config.from_mapping(
+        DATA_DIR=str(data),
+        SESSION_COOKIE_HTTPONLY=True,
+        SESSION_COOKIE_SAMESITE="Lax",
+        PERMANENT_SESSION_LIFETIME=timedelta(hours=12),
+        JSON_SORT_KEYS=False,
+        MAX_CONTENT_LENGTH=2 * 1024 * 1024,
+    )
+    if test_config:
+        app.config.update(test_config)
+    settings = load_settings(data)
+    if not app.config.get("SECRET_KEY"):
+        app.config["SECRET_KEY"] = _secret_key(data)
+    store = Store(data, settings)
+    app.extensions["rhledger"] = {"settings": settings, "store": store, "profile": None}
+    store.daily_backup_if_due()
+
+    from clinic.web import api, auth, db, helpers, pages, records_views, tools_views
+
+    db.init_app(app)
+    auth.init_app(app)
+    helpers.init_app(app)
+    pages.register_errors(app)
+    app.register_blueprint(auth.bp)
+    app.register_blueprint(pages.bp)
+    app.register_blueprint(records_views.bp)
+    app.register_blueprint(tools_views.bp)
+    app.register_blueprint(api.bp)
+
+    from clinic.web import card_views, district_views
+
+    app.register_blueprint(card_views.bp)
+    app.register_blueprint(district_views.bp)
+    if importlib.util.find_spec("clinic.web.setup_views") is not None:
+        app.register_blueprint(importlib.import_module("clinic.web.setup_views").bp)
+    return app

@@ -1,0 +1,60 @@
+"""Access to the app's Store, Settings and protocol profile, and the plan of a pregnancy.
+
+One Store is opened per app by ``create_app``; views reach it through ``get_store()``.
+"""
+from __future__ import annotations
+
+from datetime import datetime, timezone
+
+from flask import Flask, current_app
+
+
+def _ext() -> dict:
+    return current_app.extensions["rhledger"]
+
+
+def get_store():
+    """The app's clinic.store.Store."""
+    return _ext()["store"]
+
+
+def get_settings():
+    """The app's clinic.config.Settings."""
+    return _ext()["settings"]
+
+
+def utcnow() -> datetime:
+    """Now, aware, UTC. Tests may pin it with app.config["RHLEDGER_NOW"] (an aware datetime)."""
+    pinned = current_app.config.get("RHLEDGER_NOW")
+    return pinned if pinned is not None else datetime.now(timezone.utc)
+
+
+def get_profile():
+    """The facility's protocol profile, with its overrides (loaded once per app)."""
+    ext = _ext()
+    if ext["profile"] is None:
+        from clinic.care import load_profile
+
+        s = get_settings()
+        ext["profile"] = load_profile(s.profile, overrides=s.profile_overrides)
+    return ext["profile"]
+
+
+def care_context():
+    from clinic.care import CareContext
+
+    return CareContext.from_settings(get_settings())
+
+
+def plan_for(pregnancy_id: str):
+    """The care engine's Plan for one pregnancy, now."""
+    from clinic.care import plan_pregnancy
+
+    woman, pregnancy, entries = get_store().history(pregnancy_id)
+    return plan_pregnancy(woman, pregnancy, entries, now=utcnow(), profile=get_profile(),
+                          context=care_context())
+
+
+def init_app(app: Flask) -> None:
+    """Nothing to close per request: the Store is durable before each call returns."""
+    app.extensions["rhledger"].setdefault("profile", None)

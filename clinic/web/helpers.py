@@ -1,0 +1,128 @@
+"""Small helpers shared by the pages: local time, GA text, form input to raw fields."""
+from __future__ import annotations
+
+from datetime import date, datetime, timezone
+
+from flask import Flask
+
+from clinic.care.ga import format_ga
+from clinic.records.schema import KINDS
+from clinic.web.db import get_settings, utcnow
+
+
+def as_dt(value) -> datetime | None:
+    """A stored UTC text or an aware datetime -> aware datetime (None stays None)."""
+    if value is None or value == "":
+        return None
+    if isinstance(value, datetime):
+        return value if value.tzinfo else value.replace(tzinfo=timezone.utc)
+    if isinstance(value, date):
+        return datetime(value.year, value.month, value.day, tzinfo=timezone.utc)
+    return datetime.fromisoformat(str(value).replace("Z", "+00:00"))
+
+
+def local(value, fmt: str = "%a %d %b %Y %H:%M") -> str:
+    """A UTC value shown in the facility's local time."""
+    dt = as_dt(value)
+    if dt is None:
+        return ""
+    return dt.astimezone(get_settings().tz).strftime(fmt)
+
+
+def local_input(value) -> str:
+    """A UTC value as the value of a datetime-local input (facility's wall clock)."""
+    dt = as_dt(value)
+    return "" if dt is None else dt.astimezone(get_settings().tz).strftime("%Y-%m-%dT%H:%M")
+
+
+def now_local() -> datetime:
+    return utcnow().astimezone(get_settings().tz)
+
+
+def today_local() -> str:
+    return now_local().date().isoformat()
+
+
+def ga_text(days) -> str:
+    return "" if days is None or days == "" else format_ga(int(days))
+
+
+def countdown(value) -> str:
+    """'in 1 d 4 h' / '3 h 10 min ago' relative to now."""
+    dt = as_dt(value)
+    if dt is None:
+        return ""
+    secs = int((dt - utcnow()).total_seconds())
+    past = secs < 0
+    secs = abs(secs)
+    d, rem = divmod(secs, 86400)
+    h, rem = divmod(rem, 3600)
+    m = rem // 60
+    if d >= 2:
+        text = f"{d} d" + (f" {h} h" if d < 7 and h else "")
+    elif d == 1:
+        text = f"1 d {h} h"
+    elif h:
+        text = f"{h} h {m} min"
+    else:
+        text = f"{m} min"
+    return f"{text} ago" if past else f"in {text}"
+
+
+def deadline_text(value) -> str:
+    """'before 14:30 today' / 'before 14:30 tomorrow' / 'before 14:30 Thu 3 Dec', local time."""
+    dt = as_dt(value)
+    if dt is None:
+        return ""
+    loc = dt.astimezone(get_settings().tz)
+    today = now_local().date()
+    days = (loc.date() - today).days
+    day = {0: "today", 1: "tomorrow", -1: "yesterday"}.get(days, loc.strftime("%a %d %b"))
+    return f"before {loc.strftime('%H:%M')} {day}"
+
+
+def form_raw(kind: str, form, *, partial: bool = False, only=None) -> dict:
+    """Raw fields of ``kind`` from a submitted form (MultiDict).
+
+    On create an empty input means "not recorded" and is left out; on an amendment
+    (``partial``) an empty input that was shown means "clear it", so it is passed on.
+    Multi-choice fields come from several checkboxes of one name; a bool checkbox may be
+    preceded by a hidden "no" input of the same name (the last value wins).
+    """
+    spec = KINDS[kind]
+    raw: dict = {}
+    for f in spec.fields:
+        if only is not None and f.name not in only:
+            continue
+        if f.name not in form:
+            continue
+        if f.type == "choices":
+            vals = [v for v in form.getlist(f.name) if v.strip()]
+            if vals or partial:
+                raw[f.name] = vals
+            continue
+        vals = form.getlist(f.name)
+        v = vals[-1] if vals else ""
+        if v.strip() == "" and not partial:
+            continue
+        raw[f.name] = v
+    return raw
+
+
+def dict_without(d: dict, *keys) -> dict:
+    return {k: v for k, v in (d or {}).items() if k not in keys}
+
+
+def init_app(app: Flask) -> None:
+    app.add_template_filter(dict_without, "dict_without")
+    app.add_template_filter(local, "local")
+    app.add_template_filter(local_input, "local_input")
+    app.add_template_filter(ga_text, "ga")
+    app.add_template_filter(countdown, "countdown")
+    app.add_template_filter(deadline_text, "deadline")
+    app.add_template_global(today_local, "today_local")
+    app.add_template_global(now_local, "now_local")
+    app.add_template_global(KINDS, "KINDS")
+    from clinic.web.stock import lots_on_hand
+
+    app.add_template_global(lots_on_hand, "lots_on_hand")

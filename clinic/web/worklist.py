@@ -1,0 +1,93 @@
+"""The day's worklist: due, overdue and soon-due plan items across the facility's pregnancies."""
+from __future__ import annotations
+
+from datetime import timedelta
+
+from clinic.care.errors import CareError
+from clinic.web.db import get_settings, get_store, plan_for, utcnow
+from clinic.web.helpers import as_dt
+
+SOON = timedelta(days=14)
+FILTERS = {
+    "all": "Everything",
+    "routine-week": "Routine doses this week",
+    "postpartum": "Postpartum",
+    "events": "Events",
+    "surveillance": "Surveillance",
+}
+# Pregnancies whose plans can still hold something to do here.
+ACTIVE_STATUS = ("ongoing", "delivered", "ended-early")
+OPEN_STATES = ("due", "overdue", "not-yet-due")
+
+
+def _get(obj, key, default=None):
+    return obj.get(key, default) if isinstance(obj, dict) else getattr(obj, key, default)
+
+
+def _matches(item, flt: str, now) -> bool:
+    cat = _get(item, "category")
+    if flt == "all":
+        return True
+    if flt == "routine-week":
+        when = as_dt(_get(item, "due")) or as_dt(_get(item, "opens"))
+        return cat == "routine" and (when is None or when <= now + timedelta(days=7))
+    if flt == "postpartum":
+        return cat in ("postpartum", "birth")
+    if flt == "events":
+        return cat == "event"
+    if flt == "surveillance":
+        return cat in ("surveillance", "screen", "typing")
+    raise ValueError(flt)
+
+
+def cared_for_here(preg: dict, facility_id: str) -> bool:
+    """Booked here, or brought here on her card (a woman who moved). Bundle copies (district) are not."""
+    origin = preg.get("origin") or {}
+    return preg.get("facility") == facility_id or origin.get("via") == "card"
+
+
+def build(flt: str = "all") -> dict:
+    """{"rows": [{item, alerts, woman, pregnancy, plan}], "alerts": [...]}, most urgent first."""
+    if flt not in FILTERS:
+        raise KeyError(flt)
+    store, s = get_store(), get_settings()
+    now = utcnow()
+    rows, alerts = [], []
+    for preg in store.pregnancies():
+        if preg.get("status") not in ACTIVE_STATUS or preg.get("voided") or not cared_for_here(preg, s.facility_id):
+            continue
+        woman = store.get(preg["woman_id"]) or {}
+        try:
+            plan = plan_for(preg["id"])
+        except CareError as e:
+            # Said out loud, not skipped: this pregnancy's items cannot be shown until it is fixed.
+            alerts.append({"alert": {"code": "plan-failed", "severity": "danger", "source": "rhledger",
+                                     "message": f"the plan could not be worked out ({e}); open her record "
+                                                f"and check the entries"},
+                           "woman": woman, "pregnancy": preg})
+            continue
+        for a in _get(plan, "alerts", ()) or ():
+            if _get(a, "severity") in ("danger", "warning") and flt == "all":
+                alerts.append({"alert": a, "woman": woman, "pregnancy": preg})
+        for it in _get(plan, "items", ()) or ():
+            state = _get(it, "state")
+            if state not in OPEN_STATES:
+                continue
+            if state == "not-yet-due":
+                start = as_dt(_get(it, "opens")) or as_dt(_get(it, "due"))
+                if start is None or start > now + SOON:
+                    continue
+            if not _matches(it, flt, now):
+                continue
+            rows.append({"item": it, "woman": woman, "pregnancy": preg})
+    far = now + timedelta(days=3650)
+
+    def urgency(r):
+        it = r["item"]
+        rank = {"overdue": 0, "due": 1}.get(_get(it, "state"), 2)
+        return (rank, as_dt(_get(it, "closes")) or as_dt(_get(it, "due")) or far)
+
+    rows.sort(key=urgency)
+    sev = {"danger": 0, "warning": 1}
+    alerts.sort(key=lambda a: sev.get(_get(a["alert"], "severity"), 2))
+    return {"rows": rows, "alerts": alerts, "filter": flt}
