@@ -94,12 +94,14 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
 
 # ---- fetal haemoglobin (Mari et al. 2000 reference, as used by SMFM Clinical Guideline 8, 2015) --
 
-# Median fetal Hb (g/dL) by completed weeks, 18-40, from the Mari 2000 reference ranges.
-# FROM MEMORY, to be checked against Mari et al. NEJM 2000;342:9-14 (figure of Hb by GA)
-# before clinical use; values between the listed weeks are interpolated linearly.
+# Median fetal Hb (g/dL) by week, 18-40: Mari et al. NEJM 2000;342:9-14, reference values of
+# median haemoglobin by week (paper Tables 1 and 3, read in a published reproduction);
+# the values agree to 0.1 g/dL with Mari's regression median = e^(2.84 - 8.55 / GA weeks).
+# Corrected 2026-12 from values written from memory (e.g. 28 weeks was 12.4, table 12.6).
+# Values between the listed weeks are interpolated linearly.
 FETAL_HB_MEDIAN_G_DL = {
-    18: 10.6, 20: 11.0, 22: 11.4, 24: 11.8, 26: 12.1, 28: 12.4,
-    30: 12.7, 32: 13.0, 34: 13.3, 36: 13.6, 38: 13.8, 40: 14.0,
+    18: 10.6, 20: 11.1, 22: 11.6, 24: 12.0, 26: 12.3, 28: 12.6,
+    30: 12.8, 32: 13.1, 34: 13.3, 36: 13.5, 38: 13.6, 40: 13.8,
 }
 HB_GA_MIN_DAYS = 18 * 7
 HB_GA_MAX_DAYS = 40 * 7
@@ -138,7 +140,7 @@ def fetal_hb_result(hb_g_dl, ga_days, profile) -> dict:
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "hb_g_dl": _num(float(hb_g_dl)),
         "median_g_dl": _num(med), "mom": _num(mom), "severity": fetal_hb_severity(mom, profile),
-        "source": "Mari G et al., NEJM 2000;342:9-14 reference median fetal Hb (table values from memory); "
+        "source": "Mari G et al., NEJM 2000;342:9-14, reference median fetal Hb by week of gestation; "
                   "thresholds 0.84/0.65/0.55 MoM from profile " + profile.id,
     }
 

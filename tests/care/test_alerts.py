@@ -64,7 +64,7 @@ def test_dose_less_than_required():
     e = event("2026-08-01T10:00:00Z", "abdominal-trauma", id="ev9")
     d = dose("2026-08-01T12:00:00Z", 250, indication="sensitising-event", covers_id="ev9")
     plan = make_plan(booked_negative() + [e, d], now=utc(2026, 8, 2))
-    assert "dose-below-required" in alert_codes(plan)   # 21+6: 500 IU (BSH 2014, from memory)
+    assert "dose-below-required" in alert_codes(plan)   # 21+6: minimum 500 IU after 20 weeks (BSH 2014 key recs)
 
 
 def test_voided_records_do_not_count():

@@ -1,5 +1,7 @@
 """GA from crown-rump length by Robinson & Fleming (Br J Obstet Gynaecol 1975;82:702-710):
-GA (days) = 8.052 * sqrt(CRL mm) + 23.73, valid for CRL 3-84 mm."""
+GA (days) = 8.052 * sqrt(CRL mm) + 23.73 (+/- 4.7 days; formula and table read in a published
+reproduction of Robinson 1975, whose table covers about 6+2 to 14+0 weeks). The engine's
+3-84 mm validity range is from memory."""
 import math
 
 import pytest
@@ -18,10 +20,10 @@ def test_robinson_fleming_formula(crl, expected_days):
 
 
 @pytest.mark.parametrize("crl, ga_text", [
-    # Published CRL-to-GA correspondences (Robinson & Fleming 1975 table, from memory; ±1 day):
-    (10, "7+0"),    # about 7+0 at 10 mm
-    (45, "11+1"),   # about 11+1 to 11+2 at 45 mm
-    (84, "14+0"),   # the upper end of the table, about 13+6 to 14+0
+    # Robinson 1975 table of mean CRL by GA (read in a published reproduction; ±1 day):
+    (10, "7+0"),    # table: 9.3 mm at 7+0, 10.3 mm at 7+1
+    (45, "11+1"),   # table: 43.6 mm at 11+1, 47.5 mm at 11+2
+    (84, "14+0"),   # beyond the table's last row (79.6 mm at 14+0); the formula gives 97.5 days
 ])
 def test_crl_gives_published_ga(crl, ga_text):
     w, d = ga_text.split("+")

@@ -1,5 +1,6 @@
-"""A sensitising event: anti-D within 72 hours of the event (BSH 2014, Qureshi et al.; ACOG
-PB 181, 2017; from memory), then the profile's late window (BSH 10 days, ACOG up to 28 days;
+"""A sensitising event: anti-D within 72 hours of the event (BSH 2014, Qureshi et al., key
+recommendations: "as soon as possible and always within 72 h"; ACOG PB 181, 2017: from memory),
+then the profile's late window (BSH 2014 key recommendations: up to 10 days; ACOG up to 28 days:
 from memory), then missed. The boundary is exact to the minute."""
 from datetime import timedelta
 
@@ -15,7 +16,7 @@ EV = event("2026-08-01T10:00:00Z", "antepartum-haemorrhage", id="ev1")
     (timedelta(hours=1), "due"),
     (timedelta(hours=72), "due"),                                  # exactly 72 h: still on time
     (timedelta(hours=72, minutes=1), "overdue"),                   # one minute past: late window
-    (timedelta(days=10), "overdue"),                               # BSH late window, 10 days (from memory)
+    (timedelta(days=10), "overdue"),                               # BSH 2014 key recs: up to 10 days after the event
     (timedelta(days=10, minutes=1), "missed"),
 ])
 def test_bsh_event_states_by_the_minute(after, state):
@@ -23,7 +24,7 @@ def test_bsh_event_states_by_the_minute(after, state):
     it = item(plan, "event-dose:ev1")
     assert it.state == state
     assert it.closes == T + timedelta(hours=72) and it.late_until == T + timedelta(days=10)
-    assert it.dose_iu == 500 and it.dose_ug == 100      # 20+ weeks: 500 IU (BSH 2014, from memory)
+    assert it.dose_iu == 500 and it.dose_ug == 100      # after 20 weeks: minimum 500 IU (BSH 2014 key recs)
 
 
 def test_overdue_says_a_late_dose_is_still_worth_giving():
@@ -58,13 +59,15 @@ def test_acog_late_window_is_28_days():
 
 
 def test_fmh_test_required_from_20_weeks():
-    # BSH 2014 (from memory): every event from 20 weeks needs an FMH test
+    # BSH 2014 key recs: after 20 weeks a test for FMH is required (20+0 boundary day: from memory)
     plan = make_plan(booked_negative() + [EV], now=T + timedelta(hours=2))
     assert item(plan, "event-fmh:ev1").state == "due"
 
 
 def test_event_without_ga_days_gets_it_from_the_dating():
     # 2026-07-18 is 19+6 (LMP 2026-03-01): 250 IU and no FMH test; 2026-07-19 is 20+0: 500 IU + FMH
+    # (BSH 2014 key recs: 12-20 weeks 250 IU, after 20 weeks 500 IU + FMH; placing 20+0 in the
+    # later band is from memory)
     e1 = event("2026-07-18T10:00:00Z", "abdominal-trauma", id="e1")
     e2 = event("2026-07-19T10:00:00Z", "abdominal-trauma", id="e2")
     plan = make_plan(booked_negative() + [e1, e2], now=utc(2026, 7, 19, 12))

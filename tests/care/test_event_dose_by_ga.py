@@ -27,8 +27,9 @@ def test_acog_50_ug_before_12_weeks_where_stocked():
 
 
 def test_acog_2024_update_forgoes_anti_d_before_12_weeks_after_loss():
-    # ACOG Clinical Practice Update (2024), from memory: may forgo anti-D before 12 weeks after
-    # spontaneous or induced abortion; not for ectopic pregnancy (kept at the 2017 dose).
+    # ACOG Clinical Practice Update (2024), as published summaries of it state: before 12+0 weeks
+    # routine testing and anti-D may be forgone after abortion or pregnancy loss. Ectopic pregnancy
+    # kept at the 2017 dose: from memory (not covered by the summaries read).
     assert not event_dose("miscarriage", 70, ACOG24).needed
     assert not event_dose("termination", 70, ACOG24).needed
     assert event_dose("ectopic", 70, ACOG24).dose_iu == 1500
@@ -36,7 +37,8 @@ def test_acog_2024_update_forgoes_anti_d_before_12_weeks_after_loss():
 
 
 @pytest.mark.parametrize("kind, needed", [
-    # BSH 2014 (from memory): before 12 weeks only ectopic, molar pregnancy, therapeutic termination
+    # BSH 2014 key recs: before 12 weeks only ectopic, molar pregnancy, therapeutic termination
+    # (and uterine bleeding that is repeated, heavy or with abdominal pain: next test)
     ("ectopic", True), ("molar-pregnancy", True), ("termination", True),
     ("miscarriage", False), ("abdominal-trauma", False),
 ])
@@ -44,20 +46,20 @@ def test_bsh_before_12_weeks_only_listed_kinds(kind, needed):
     r = event_dose(kind, 10 * 7, BSH)
     assert r.needed is needed
     if needed:
-        assert r.dose_iu == 250   # BSH 2014: 250 IU before 20 weeks (from memory)
+        assert r.dose_iu == 250   # BSH 2014 key recs: before 12 weeks, minimum 250 IU
 
 
 def test_bsh_bleeding_before_12_weeks_is_conditional():
-    # BSH 2014 (from memory): uterine bleeding before 12 weeks only if repeated, heavy or with pain
+    # BSH 2014 key recs: uterine bleeding before 12 weeks only if repeated, heavy or with abdominal pain
     r = event_dose("antepartum-haemorrhage", 10 * 7, BSH)
     assert r.needed and r.conditional and r.dose_iu == 250
 
 
 @pytest.mark.parametrize("ga, iu, fmh", [
-    (11 * 7 + 6, 250, False),   # 11+6, listed kind: 250 IU (BSH 2014, from memory)
-    (12 * 7, 250, False),       # 12+0: 250 IU, any kind (BSH 2014, from memory)
+    (11 * 7 + 6, 250, False),   # 11+6, listed kind: minimum 250 IU, no FMH test (BSH 2014 key recs)
+    (12 * 7, 250, False),       # 12+0: any event 12-20 weeks, minimum 250 IU, no FMH test (BSH 2014 key recs)
     (19 * 7 + 6, 250, False),   # 19+6: still 250 IU
-    (20 * 7, 500, True),        # 20+0: 500 IU and an FMH test (BSH 2014, from memory)
+    (20 * 7, 500, True),        # after 20 weeks: minimum 500 IU and an FMH test (BSH 2014 key recs; 20+0 as the first day: from memory)
     (36 * 7, 500, True),
 ])
 def test_bsh_bands_at_12_and_20_weeks(ga, iu, fmh):

@@ -18,8 +18,10 @@ def test_bleed_volume_is_fraction_times_maternal_volume():
 
 
 @pytest.mark.parametrize("percent, vials", [
-    # AABB Technical Manual worked example of the vial rule (from memory): 1.5 % fetal cells x
-    # 5000 mL = 75 mL; 75 / 30 = 2.5 -> round up to 3, add one = 4 vials of 300 µg.
+    # AABB Technical Manual worked example of the vial rule (from memory; Sandler & Gottschall,
+    # Obstet Gynecol 2012, abstract: one 300 µg vial per 30 mL fetal whole blood, with an extra vial
+    # added in borderline cases): 1.5 % fetal cells x 5000 mL = 75 mL; 75 / 30 = 2.5 -> round up
+    # to 3, add one = 4 vials of 300 µg.
     (1.5, 4),
     # 1.3 % -> 65 mL; 65 / 30 = 2.17 -> round down to 2, add one = 3 vials (same rule, from memory)
     (1.3, 3),

@@ -1,7 +1,8 @@
 """MCA peak systolic velocity in multiples of the median, after Mari G, Deter RL, Carpenter RL,
 et al., "Noninvasive diagnosis by Doppler ultrasonography of fetal anemia due to maternal
 red-cell alloimmunization", NEJM 2000;342:9-14: median = e^(2.31 + 0.046 x GA weeks);
-1.29 / 1.50 / 1.55 MoM for mild / moderate / severe anaemia."""
+1.29 / 1.50 / 1.55 MoM for mild / moderate / severe anaemia (these three cut-offs from memory;
+not found in the texts read)."""
 import math
 
 import pytest
@@ -10,9 +11,10 @@ from clinic.care import CareInputError, load_profile, mca_psv_median, mca_psv_mo
 
 ACOG = load_profile("acog-2017")
 
-# Mari 2000 table of MCA-PSV by week: median (1.00 MoM) and 1.50 MoM in cm/s — FROM MEMORY
-# (the table could not be opened here). The published table values run about 1 % above the
-# regression curve, so they are compared with a 2 % tolerance.
+# Mari 2000 table of MCA-PSV by week: the medians (1.00 MoM, cm/s) match the paper's reference
+# table as read in a published reproduction (18: 23.2 ... 40: 64.4); the 1.50 MoM column is
+# 1.5 x the table median (the paper's 1.50 MoM column itself was not read). The table values run
+# about 1 % above the regression curve, so they are compared with a 2 % tolerance.
 MARI_2000_TABLE = {
     18: (23.2, 34.8), 20: (25.5, 38.2), 22: (27.9, 41.9), 24: (30.7, 46.0), 26: (33.6, 50.4),
     28: (36.9, 55.3), 30: (40.5, 60.7), 32: (44.4, 66.6), 34: (48.7, 73.1), 36: (53.5, 80.2),
@@ -29,7 +31,7 @@ def test_median_matches_mari_2000_table(weeks):
 
 @pytest.mark.parametrize("weeks", [18, 24, 30, 36, 40])
 def test_median_is_the_published_regression(weeks):
-    # Mari 2000: median = e^(2.31 + 0.046 x GA in weeks)
+    # Mari 2000: median = e^(2.31 + 0.046 x GA in weeks) (Mari's equation, read in a published reproduction)
     assert mca_psv_median(weeks * 7) == pytest.approx(math.exp(2.31 + 0.046 * weeks), rel=1e-12)
 
 
@@ -42,11 +44,11 @@ def test_cli_example_45_cm_s_at_30_2():
 
 
 @pytest.mark.parametrize("mom, severity", [
-    (1.28, "none"),      # below 1.29 MoM (Mari 2000)
-    (1.29, "mild"),      # 1.29 MoM: mild anaemia threshold (Mari 2000)
+    (1.28, "none"),      # below 1.29 MoM (Mari 2000, from memory)
+    (1.29, "mild"),      # 1.29 MoM: mild anaemia threshold (Mari 2000, from memory)
     (1.49, "mild"),
-    (1.50, "moderate"),  # 1.50 MoM: moderate (Mari 2000)
-    (1.55, "severe"),    # 1.55 MoM: severe (Mari 2000)
+    (1.50, "moderate"),  # 1.50 MoM: moderate (Mari 2000, from memory)
+    (1.55, "severe"),    # 1.55 MoM: severe (Mari 2000, from memory)
     (2.0, "severe"),
 ])
 def test_mom_thresholds_classify_anaemia(mom, severity):
@@ -54,7 +56,8 @@ def test_mom_thresholds_classify_anaemia(mom, severity):
 
 
 def test_at_or_above_1_5_mom_suggests_fetal_blood_sampling():
-    # SMFM Clinical Guideline 8 (2015): MCA-PSV above 1.5 MoM -> fetal blood sampling (from memory)
+    # SMFM Clinical Guideline 8 (2015), abstract recommendation 4: MCA greater than 1.5 MoM (or
+    # hydropic) -> fetal blood sampling; the engine refers at or above 1.50 (boundary: common practice)
     med = mca_psv_median(30 * 7)
     r = mca_result(round(med * 1.6, 1), 30 * 7, ACOG)
     assert r["refer"] and "fetal blood sampling" in r["suggestion"]

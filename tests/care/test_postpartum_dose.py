@@ -1,5 +1,6 @@
 """After the birth: cord blood typing and DAT, the postpartum dose within 72 hours when the
-baby is RhD positive or not known (BSH 2014; ACOG PB 181, 2017; from memory), the late window,
+baby is RhD positive or not known (BSH 2014 key recommendations, post-delivery: at least 500 IU
+within 72 h and an FMH test; ACOG PB 181, 2017, Level A: within 72 hours of delivery), the late window,
 and a positive DAT flagged for a clinician instead of withholding the dose."""
 from datetime import timedelta
 from zoneinfo import ZoneInfo
@@ -19,15 +20,16 @@ def _with(b, *extra, now=BORN + timedelta(hours=5), profile="bsh-2014", **kw):
 def test_baby_positive_dose_due_within_72_hours():
     plan = _with(birth("2026-11-28T10:00:00Z", id="b1"))
     it = item(plan, "postpartum-dose")
-    assert it.state == "due" and it.dose_iu == 500        # BSH 2014: at least 500 IU (from memory)
+    assert it.state == "due" and it.dose_iu == 500        # BSH 2014 key recs: at least 500 IU within 72 h
     assert it.closes == BORN + timedelta(hours=72) and it.late_until == BORN + timedelta(days=10)
     assert it.related_id == "b1"
-    assert item(plan, "postpartum-fmh").state == "due"    # BSH 2014: FMH test after birth (from memory)
+    assert item(plan, "postpartum-fmh").state == "due"    # BSH 2014 key recs: maternal sample tested for FMH
     assert item(plan, "cord-typing").state == "done"
 
 
 def test_acog_postpartum_300_ug_and_28_day_late_window():
-    # ACOG PB 181 (2017): 300 µg within 72 h; up to 28 days when 72 h have passed (from memory)
+    # ACOG PB 181 (2017), Level A: within 72 hours of delivery; 300 µg and up to 28 days when 72 h
+    # have passed: from memory
     plan = _with(birth("2026-11-28T10:00:00Z"), profile="acog-2017", now=BORN + timedelta(days=27))
     it = item(plan, "postpartum-dose")
     assert (it.state, it.dose_iu, it.dose_ug) == ("overdue", 1500, 300)

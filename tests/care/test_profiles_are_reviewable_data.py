@@ -49,8 +49,9 @@ def test_every_value_line_carries_its_source_or_review_status(pid):
 
 
 def test_acog_2017_values():
-    # ACOG PB 181 (2017), from memory: 300 µg at 28 weeks; 50 µg / 300 µg before 12 weeks; 300 µg
-    # from 12 weeks and postpartum within 72 h; 30 mL whole blood per 300 µg; late up to 28 days
+    # ACOG PB 181 (2017): at 28 weeks and postpartum within 72 h (Level A recommendations, read);
+    # 30 mL fetal whole blood per 300 µg vial (Sandler & Gottschall 2012, abstract); from memory:
+    # the 300 µg doses, 50 µg / 300 µg before 12 weeks, 300 µg from 12 weeks, late up to 28 days
     p = load_profile("acog-2017")
     (r,) = p.routine_doses()
     assert (r.dose_iu, r.opens_ga_days) == (1500, 196)
@@ -61,7 +62,9 @@ def test_acog_2017_values():
 
 
 def test_bsh_2014_values():
-    # BSH 2014 (Qureshi et al.) and NICE TA156, from memory
+    # NICE TA156 (2008) 3.1 and 3.3 (500 IU at 28 and 34 weeks; 1500 IU once at 28-30 weeks) and
+    # BSH 2014 (Qureshi et al.) key recommendations (events and post-delivery doses, 10-day late
+    # window); the 125 and 100 IU per mL FMH rates: from memory
     p = load_profile("bsh-2014")
     assert [(d.dose_iu, d.opens_ga_days) for d in p.routine_doses()] == [(500, 196), (500, 238)]
     single = load_profile("bsh-2014-single").routine_doses()

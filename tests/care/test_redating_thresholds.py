@@ -1,7 +1,8 @@
 """Which dating to use when LMP and ultrasound disagree.
 
-acog-2017 follows ACOG Committee Opinion 700 (2017), Table 1 (from memory; its GA ranges are by
-LMP on the day of the scan): re-date by the scan when the difference is more than 5 days before 9+0, more than 7 days at 9+0 to 13+6,
+acog-2017 follows ACOG Committee Opinion 700 (2017), Table 1 (thresholds read as reproduced in
+published summaries of CO 700; that its GA ranges are by LMP on the day of the scan is from
+memory): re-date by the scan when the difference is more than 5 days before 9+0, more than 7 days at 9+0 to 13+6,
 more than 7 days at 14+0 to 15+6, more than 10 days at 16+0 to 21+6, more than 14 days at
 22+0 to 27+6, more than 21 days from 28+0. bsh-2014 dates by the scan whenever there is one
 (NICE NG201, 2021, from memory)."""
@@ -19,7 +20,7 @@ def _acog(lmp, scan_on, scan_ga):
 
 
 @pytest.mark.parametrize("scan_ga_text, limit", [
-    ("8+0", 5),    # before 9+0: more than 5 days (ACOG CO 700 Table 1, from memory)
+    ("8+0", 5),    # up to 8+6: more than 5 days (ACOG CO 700 Table 1)
     ("9+0", 7),    # 9+0 to 13+6: more than 7 days
     ("13+6", 7),
     ("15+0", 7),   # 14+0 to 15+6: more than 7 days
@@ -45,7 +46,7 @@ def test_bsh_profile_dates_by_the_scan_when_present():
     d = choose_dating(lmp=date(2026, 3, 1), scan_on=date(2026, 5, 10), scan_crl_mm=45.0,
                       rule=p.get("dating.rule"), thresholds=[])
     assert d.method == "scan"
-    # CRL 45 mm -> 78 days (Robinson & Fleming 1975); EDD = scan day + (280 - 78) days
+    # CRL 45 mm -> 78 days (Robinson & Fleming 1975 formula); EDD = scan day + (280 - 78) days
     assert d.edd == date(2026, 5, 10) + timedelta(days=280 - 78)
 
 

@@ -11,7 +11,7 @@ from tests.care.builders import (alert_codes, booked_negative, birth, dose, item
 
 
 def test_bsh_two_dose_windows():
-    # NICE TA156 (2008): 500 IU at 28 and at 34 weeks (from memory); on time within that week
+    # NICE TA156 (2008) 3.1: 500 IU at 28 and at 34 weeks; on time within that week
     # (common practice), late until the profile's limit (common practice)
     plan = make_plan(booked_negative(), now=utc(2026, 9, 1))
     r1, r2 = item(plan, "routine-dose-1"), item(plan, "routine-dose-2")
@@ -21,10 +21,12 @@ def test_bsh_two_dose_windows():
 
 
 @pytest.mark.parametrize("profile, overrides, closes, iu", [
-    # NICE TA156: 1500 IU once at 28-30 weeks (from memory): closes at the end of 30+0
+    # NICE TA156 (2008) 3.3: 1500 IU once between 28 and 30 weeks; closing at the end of 30+0
+    # (not 30+6) is common practice
     ("bsh-2014-single", None, utc(2026, 9, 28), 1500),
     ("bsh-2014", {"routine.regimen": "single"}, utc(2026, 9, 28), 1500),
-    # ACOG PB 181: 300 µg at 28 weeks (from memory); on time to the end of 29+6 (common practice)
+    # ACOG PB 181 (2017), Level A: at 28 weeks (the 300 µg dose: from memory); on time to the end
+    # of 29+6 (common practice)
     ("acog-2017", None, utc(2026, 9, 27), 1500),
 ])
 def test_single_dose_regimens(profile, overrides, closes, iu):
@@ -71,7 +73,8 @@ def test_local_time_not_utc_sets_the_window():
 
 
 def test_pre_dose_screen_done_when_sampled_before_the_dose():
-    # BSH 2016 / ACOG PB 181: antibody screen at 28 weeks before the routine dose (from memory)
+    # BSH 2016 (White et al.), abstract: antibody screen at booking and at 28 weeks; taken before the
+    # routine dose, and ACOG PB 181's repeat screen: from memory
     plan = make_plan(booked_negative() + [screen("2026-09-13T09:00:00Z"), dose("2026-09-13T10:00:00Z", 500)],
                      now=utc(2026, 9, 20))
     assert item(plan, "pre-dose-screen").state == "done"
@@ -86,7 +89,8 @@ def test_routine_dose_before_the_screen_sample_is_flagged():
 
 
 def test_targeted_prophylaxis_on_a_negative_fetal_rhd():
-    # NICE DG25 (2016, from memory): fetal RHD negative -> no routine antenatal anti-D
+    # NICE DG25 (2016) 1.1: fetal RHD genotype testing recommended to guide antenatal anti-D
+    # prophylaxis, so a fetal RHD negative result -> no routine antenatal anti-D
     cf = rec("fetal_rhd", result="negative", sampled_on="2026-06-20")
     plan = make_plan(booked_negative() + [cf], now=utc(2026, 9, 14))
     assert item(plan, "routine-dose-1").state == "not-needed"
@@ -117,7 +121,8 @@ def test_birth_before_the_window_means_not_needed_and_after_means_missed():
 
 
 def test_partner_rhd_negative_is_an_informed_choice_not_a_cancellation():
-    # NICE TA156 (2008, from memory): father RhD negative and paternity certain -> may decline
+    # NICE TA41 (2002) 1.2, unchanged by TA156 (2008): RAADP may be unnecessary if she is in a stable
+    # relationship with the father and he is RhD negative ("paternity certain" is that condition)
     pt = rec("partner_typing", rhd="negative", paternity_certain=True, tested_on="2026-05-02")
     plan = make_plan(booked_negative() + [pt], now=utc(2026, 9, 14))
     assert item(plan, "routine-dose-1").state == "due"

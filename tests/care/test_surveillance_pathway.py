@@ -30,7 +30,7 @@ def test_acog_critical_titres(name, titre, critical):
 
 
 @pytest.mark.parametrize("iu_ml, level, critical", [
-    (3.9, "low", False),        # below 4 IU/mL: low risk (BSH 2016, from memory)
+    (3.9, "low", False),        # below 4 IU/mL: low risk (BSH 2016, from memory; the 4 IU/mL cut-off matches Bowell et al., BMJ 1982)
     (4.0, "moderate", True),    # 4-15 IU/mL: moderate, refer (BSH 2016, from memory)
     (15.0, "moderate", True),
     (15.1, "high", True),       # above 15 IU/mL: high (BSH 2016, from memory)
@@ -56,6 +56,8 @@ def test_rising_titre_alert_in_the_plan():
     assert plan.pathway == "surveillance"
 
 
+# acog-2017: titres every 4 weeks (SMFM Clinical Guideline 8 summary page); every 2 weeks from
+# 28+0 (from memory; the summary says "more frequently" later in pregnancy)
 @pytest.mark.parametrize("sampled, due", [
     (utc(2026, 7, 19, 9), utc(2026, 8, 16, 9)),   # at 20+0: next in 4 weeks (24+0)
     (utc(2026, 8, 30, 9), utc(2026, 9, 13, 9)),   # at 26+0: 4 weeks would pass 28+0 -> 2 weeks, at 28+0
@@ -80,7 +82,8 @@ def test_critical_titre_refers_and_starts_doppler():
 
 
 def test_high_mca_psv_suggests_fetal_blood_sampling():
-    # Mari 2000: 1.5 MoM; SMFM 2015: above 1.5 MoM -> fetal blood sampling (from memory)
+    # SMFM Clinical Guideline 8 (2015), abstract recommendation 4: MCA greater than 1.5 MoM ->
+    # fetal blood sampling
     ga = 26 * 7
     psv = round(1.6 * mca_psv_median(ga), 1)
     e = booked_negative()[:1] + [_ab("2026-07-19T09:00:00Z", titre=32),
@@ -96,7 +99,7 @@ def test_fetal_hb_result_is_classified():
                                  rec("fbs", sampled_at="2026-09-13T09:00:00Z", hb_g_dl=6.5)]
     plan = make_plan(e, now=utc(2026, 9, 13, 12), profile="acog-2017")
     a = [x for x in plan.alerts if x.code == "fetal-hb"][0]
-    # 6.5 / 12.4 (Mari 2000 median at 28 weeks, from memory) = 0.52 MoM: severe (below 0.55)
+    # 6.5 / 12.6 (Mari 2000 median at 28 weeks, from the published table) = 0.52 MoM: severe (below 0.55)
     assert a.severity == "danger" and "severe" in a.message
 
 
