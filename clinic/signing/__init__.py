@@ -1,0 +1,12 @@
+"""Facility Ed25519 keys, the district trust list, and COSE_Sign1 signing and checking.
+
+- ``keys``: ``ensure_facility_key``, ``load_signing_key``, ``rotate_facility_key``
+- ``trust``: ``TrustList``, ``load_trust``, ``build_trust_list``, ``import_trust_list``
+- ``cose``: ``sign1``, ``verify1`` (RFC 9052 COSE_Sign1, EdDSA / Ed25519)
+
+Depends on nothing of ours except ``clinic.config`` (the facility's name for its own entry).
+"""
+from clinic.signing.errors import (CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError, SigningError,
+                                   TrustListError)
+
+__all__ = ["CoseFormatError", "DistrictKeyUnconfirmed", "KeyStoreError", "SigningError", "TrustListError"]

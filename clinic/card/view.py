@@ -1,0 +1,190 @@
+"""What the printed card and the referral note show, as plain dicts for the templates.
+
+Built from stored-shape records (woman, pregnancy, entries), the care engine's plan as a
+dict (``Plan.to_dict()``, optional) and the card text. Everything a person reads is
+worked out here, so the templates only lay it out.
+"""
+from __future__ import annotations
+
+from datetime import date, datetime, timezone, tzinfo
+from typing import Any
+
+from clinic.care.ga import format_ga
+
+CAUTION = ("Decision support only: confirm every dose against the product label and local protocol, "
+           "and defer to licensed clinicians and local regulations.")
+SENSITISED_LINE = "Antibody present \u2013 refer"
+RHD_WORDS = {"positive": "RhD positive", "negative": "RhD negative", "weak-d": "weak D",
+             "partial-d": "partial D", "inconclusive": "RhD inconclusive", "unknown": "RhD not known"}
+EVENT_WORDS = {"antepartum-haemorrhage": "Antepartum haemorrhage", "abdominal-trauma": "Abdominal trauma",
+               "external-cephalic-version": "External cephalic version",
+               "chorionic-villus-sampling": "Chorionic villus sampling", "fetal-blood-sampling": "Fetal blood sampling",
+               "intrauterine-death": "Intrauterine death", "molar-pregnancy": "Molar pregnancy"}
+INDICATION_WORDS = {"routine-antenatal": "routine", "sensitising-event": "after event", "postpartum": "after birth",
+                    "large-fmh": "large FMH"}
+OPEN_STATES = ("overdue", "due", "not-yet-due")
+STATE_WORDS = {"overdue": "OVERDUE", "due": "due now", "not-yet-due": "due"}
+
+
+def _parse(text: str) -> datetime:
+    return datetime.fromisoformat(text.replace("Z", "+00:00"))
+
+
+def show_date(v: str | None) -> str:
+    """'2026-11-20' or a UTC time -> '20 Nov 2026' (month in letters: no day/month mix-up)."""
+    if not v:
+        return ""
+    d = date.fromisoformat(v[:10])
+    return d.strftime("%d %b %Y").lstrip("0")
+
+
+def show_time(v: str | None, tz: tzinfo) -> str:
+    if not v:
+        return ""
+    t = _parse(v).astimezone(tz)
+    return t.strftime("%d %b %Y %H:%M").lstrip("0")
+
+
+def local_date(v: str | None, tz: tzinfo) -> str:
+    if not v:
+        return ""
+    if len(v) == 10:
+        return v
+    return _parse(v).astimezone(tz).date().isoformat()
+
+
+def ga_at(day_iso: str, edd: str | None) -> int | None:
+    if not edd or not day_iso:
+        return None
+    return 280 - (date.fromisoformat(edd) - date.fromisoformat(day_iso[:10])).days
+
+
+def _ga_text(rec: dict, day: str, edd: str | None) -> str:
+    days = rec.get("ga_days")
+    if days is None:
+        days = ga_at(day, edd)
+        if days is None or not 0 <= days <= 320:
+            return ""
+    return format_ga(int(days))
+
+
+def ug_text(iu: float) -> str:
+    ug = iu / 5
+    return f"{ug:g}"
+
+
+def is_sensitised(entries: list[dict]) -> bool:
+    """A positive screen naming an antibody other than anti-D, or anti-D not judged passive."""
+    for s in entries:
+        if s.get("kind") != "screen" or s.get("voided") or s.get("result") != "positive":
+            continue
+        abs_ = s.get("antibodies") or []
+        if not abs_ or any(a != "anti-D" for a in abs_):
+            return True
+        if s.get("anti_d_origin") != "passive":
+            return True
+    return False
+
+
+def _latest(entries, kind):
+    of = [e for e in entries if e.get("kind") == kind and not e.get("voided")]
+    key = {"typing": "tested_on", "partner_typing": "tested_on", "fetal_rhd": "sampled_on"}[kind]
+    of.sort(key=lambda r: (r.get(key) or "", r.get("created_at") or ""))
+    return of[-1] if of else None
+
+
+def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict | None = None,
+               issuer: dict, issue: int, issued_at: str, card_code: str = "", qr_text: str = "",
+               qr_version: int | None = None, omitted: int = 0, tz: tzinfo = timezone.utc,
+               now: datetime | None = None) -> dict[str, Any]:
+    """The card's content for a person to read."""
+    live = [e for e in entries if not e.get("voided")]
+    edd = (plan or {}).get("dating", {}).get("edd") or pregnancy.get("edd")
+    t = _latest(live, "typing")
+    blood = None
+    if t:
+        variant = ""
+        if t["rhd"] == "weak-d":
+            variant = f"Weak D{(' type ' + t['weak_d_type']) if t.get('weak_d_type') else ''}"
+        elif t["rhd"] == "partial-d":
+            variant = f"Partial D{(' ' + t['partial_d_category']) if t.get('partial_d_category') else ''}"
+        managed = (plan or {}).get("rhd", {}).get("managed_as")
+        blood = {"abo": t["abo"] if t["abo"] != "unknown" else "ABO ?", "rhd": RHD_WORDS.get(t["rhd"], t["rhd"]),
+                 "variant": variant, "tested_on": show_date(t.get("tested_on")), "lab": t.get("lab", ""),
+                 "managed_as": RHD_WORDS.get(managed, "") if managed and t["rhd"] not in ("positive", "negative") else ""}
+    pt = _latest(live, "partner_typing")
+    fr = _latest(live, "fetal_rhd")
+    screens = [{"date": show_time(s["sampled_at"], tz)[:-6], "ga": _ga_text(s, local_date(s["sampled_at"], tz), edd),
+                "result": s["result"], "antibodies": ", ".join(s.get("antibodies") or []) +
+                (f" ({s['antibody_other']})" if s.get("antibody_other") else ""),
+                "titre": f"1:{s['titre']}" if s.get("titre") else "",
+                "quant": f"{s['anti_d_iu_ml']:g} IU/mL" if s.get("anti_d_iu_ml") is not None else "",
+                "origin": s.get("anti_d_origin", "")}
+               for s in sorted((e for e in live if e["kind"] == "screen"), key=lambda r: r["sampled_at"])]
+    events = [{"date": show_time(e["occurred_at"], tz), "ga": _ga_text(e, local_date(e["occurred_at"], tz), edd),
+               "what": EVENT_WORDS.get(e["event_kind"], e["event_kind"].replace("-", " ").capitalize()),
+               "ongoing": bool(e.get("ongoing")), "notes": e.get("notes", "")}
+              for e in sorted((x for x in live if x["kind"] == "event"), key=lambda r: r["occurred_at"])]
+    doses = []
+    for d in sorted((x for x in live if x["kind"] == "dose"), key=lambda r: r["given_at"]):
+        iu = d.get("dose_iu") or (d["amount"] * 5 if d["unit"] == "ug" else d["amount"])
+        doses.append({"date": show_time(d["given_at"], tz), "ga": _ga_text(d, local_date(d["given_at"], tz), edd),
+                      "ug": ug_text(iu), "iu": f"{int(round(iu))}", "route": d["route"], "lot": d["lot"],
+                      "why": INDICATION_WORDS.get(d["indication"], d["indication"]), "product": d.get("product", "")})
+    births = [{"date": show_time(b["born_at"], tz), "ga": _ga_text(b, local_date(b["born_at"], tz), edd),
+               "outcome": b["outcome"].replace("-", " "),
+               "baby": " ".join(x for x in ((b.get("baby_abo") or "") if b.get("baby_abo") != "unknown" else "",
+                                            RHD_WORDS.get(b["baby_rhd"], b["baby_rhd"]) if b["baby_rhd"] != "not-tested"
+                                            else "RhD not tested") if x),
+               "dat": {"positive": "DAT positive", "negative": "DAT negative", "not-done": "DAT not done"}.get(
+                   b.get("dat") or "", "DAT not recorded")}
+              for b in sorted((x for x in live if x["kind"] == "birth"), key=lambda r: r["born_at"])]
+    actions = []
+    for it in (plan or {}).get("items", []):
+        if it.get("state") not in OPEN_STATES:
+            continue
+        dose = ""
+        if it.get("dose_iu"):
+            dose = f"{ug_text(it['dose_iu'])} µg / {it['dose_iu']} IU"
+        actions.append({"title": it["title"], "due": show_date(local_date(it.get("due"), tz)) if it.get("due") else "",
+                        "closes": show_date(local_date(it.get("closes"), tz)) if it.get("closes") else "",
+                        "state": it["state"], "state_words": STATE_WORDS[it["state"]], "dose": dose,
+                        "sort": it.get("due") or "9999"})
+    actions.sort(key=lambda a: a["sort"])
+    referrals = [{"date": show_date(r["referred_on"]), "to": r["to_facility"], "reason": r["reason"],
+                  "question": r.get("question", "")}
+                 for r in sorted((x for x in live if x["kind"] == "referral"), key=lambda r: r["referred_on"])]
+    age = ""
+    if woman.get("birth_date"):
+        bd = date.fromisoformat(woman["birth_date"])
+        ref = (now or datetime.now(timezone.utc)).date()
+        years = ref.year - bd.year - ((ref.month, ref.day) < (bd.month, bd.day))
+        age = f"{show_date(woman['birth_date'])} ({years} y)"
+    elif woman.get("stated_age") is not None:
+        age = f"age {woman['stated_age']} (stated)"
+    return {
+        "woman": {"name": woman.get("name", ""), "born": age, "register_no": woman.get("register_no", ""),
+                  "village": woman.get("village", "")},
+        "pregnancy": {"edd": show_date(edd), "booked_on": show_date(pregnancy.get("booked_on")),
+                      "gravidity": pregnancy.get("gravidity"), "parity": pregnancy.get("parity"),
+                      "status": pregnancy.get("status", ""), "id": pregnancy.get("id", ""),
+                      "prior_sensitising": pregnancy.get("prior_sensitising", ""),
+                      "prior_anti_d": pregnancy.get("prior_anti_d", "")},
+        "blood": blood,
+        "partner": ({"rhd": RHD_WORDS.get(pt["rhd"], pt["rhd"]), "abo": pt.get("abo", "") if pt.get("abo") != "unknown" else "",
+                     "zygosity": pt.get("rhd_zygosity", "") if pt.get("rhd_zygosity") != "unknown" else ""}
+                    if pt else None),
+        "fetal": ({"result": {"positive": "RHD positive", "negative": "RHD negative",
+                              "inconclusive": "inconclusive"}[fr["result"]],
+                   "date": show_date(fr["sampled_on"]), "ga": _ga_text(fr, fr["sampled_on"], edd)} if fr else None),
+        "sensitised": is_sensitised(live),
+        "sensitised_line": SENSITISED_LINE,
+        "screens": screens, "events": events, "doses": doses, "births": births, "actions": actions,
+        "referrals": referrals,
+        "issuer": {"name": issuer.get("name", ""), "phone": issuer.get("phone", ""),
+                   "facility_id": issuer.get("facility_id", "")},
+        "issue": issue, "issued": show_date(issued_at), "issued_at": issued_at,
+        "card_code": card_code, "qr_text": qr_text, "qr_version": qr_version, "omitted": omitted,
+        "caution": (plan or {}).get("caution") or CAUTION,
+        "base_caution": CAUTION,
+    }
