@@ -5,8 +5,6 @@ app) and registers every blueprint. Pages and API live in small modules beside t
 """
 from __future__ import annotations
 
-import importlib
-import importlib.util
 import os
 import secrets
 from datetime import timedelta
@@ -72,10 +70,9 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     app.register_blueprint(tools_views.bp)
     app.register_blueprint(api.bp)
 
-    from clinic.web import card_views, district_views
+    from clinic.web import card_views, district_views, setup_views
 
     app.register_blueprint(card_views.bp)
     app.register_blueprint(district_views.bp)
-    if importlib.util.find_spec("clinic.web.setup_views") is not None:
-        app.register_blueprint(importlib.import_module("clinic.web.setup_views").bp)
+    app.register_blueprint(setup_views.bp)
     return app

@@ -9,34 +9,16 @@ from clinic.web.db import get_settings, get_store
 
 bp = Blueprint("pages", __name__)
 
-# (label, blueprint or endpoint, key). Blueprint entries link to the first GET page
-# without arguments that the blueprint registers (its owner chooses the URL).
+# (label, endpoint, key) of the main navigation.
 NAV = (
     ("Today", "pages.today", "today"),
     ("Find", "pages.find", "find"),
     ("Book", "records.booking", "book"),
     ("Calculators", "tools.calculators", "calc"),
     ("Stock", "records.stock", "stock"),
-    ("Cards", "card", "card"),
-    ("District", "district", "district"),
+    ("Cards", "card.index", "card"),
+    ("District", "district.index", "district"),
 )
-
-
-def blueprint_home(name: str) -> str | None:
-    """URL of a blueprint's landing page: ``<bp>.index`` if any, else its first GET page without arguments."""
-    rules = [r for r in current_app.url_map.iter_rules()
-             if r.endpoint.startswith(name + ".") and "GET" in (r.methods or ()) and not r.arguments]
-    if not rules:
-        return None
-    rules.sort(key=lambda r: (r.endpoint != f"{name}.index", len(r.rule)))
-    return url_for(rules[0].endpoint)
-
-
-def endpoint_url(endpoint: str, **values) -> str | None:
-    """URL of another blueprint's page when that page exists (links to card/district pages)."""
-    if endpoint not in current_app.view_functions:
-        return None
-    return url_for(endpoint, **values)
 
 
 def nav_links():
@@ -47,16 +29,13 @@ def nav_links():
     for label, target, key in NAV:
         if key == "book" and (user is None or user.role not in WRITE_ROLES):
             continue
-        href = url_for(target) if "." in target else blueprint_home(target)
-        if href:
-            out.append((label, href, key))
+        out.append((label, url_for(target), key))
     return out
 
 
 @bp.app_context_processor
 def _inject():
-    return {"settings": get_settings(), "nav_links": nav_links, "blueprint_home": blueprint_home,
-            "endpoint_url": endpoint_url}
+    return {"settings": get_settings(), "nav_links": nav_links}
 
 
 @bp.route("/")
@@ -80,7 +59,7 @@ def find():
         for w in results:
             pregs = sorted(by_woman.get(w["id"], []), key=lambda p: p.get("booked_on", ""), reverse=True)
             rows.append({"woman": w, "pregnancies": pregs})
-    return render_template("find.html", q=q, rows=rows, card_home=blueprint_home("card"),
+    return render_template("find.html", q=q, rows=rows, 
                            nav_active="find")
 
 

@@ -176,7 +176,7 @@ def pregnancy(pregnancy_id):
         entry_kinds=[KINDS[k] for k in ENTRY_KINDS], time_of=time_of,
         titre_svg=charts.titre_chart(titre_points(all_entries, plan)),
         mca_svg=charts.mca_chart(mca_points(all_entries, plan), _mca_median),
-        card_home=_card_home(), stock_links=_stock_links(all_entries))
+        stock_links=_stock_links(all_entries))
 
 
 def ga_of(entry: dict, plan) -> int | None:
@@ -235,12 +235,6 @@ def _stock_links(entries) -> dict[str, str]:
             args.update(product=p.name, vial_iu=p.vial_iu, vials=vials_for(e.get("dose_iu") or 1, p.vial_iu))
         out[e["id"]] = url_for("records.stock", **{k: v for k, v in args.items() if v})
     return out
-
-
-def _card_home():
-    from clinic.web.pages import blueprint_home
-
-    return blueprint_home("card")
 
 
 def entry_defaults(kind: str, pregnancy_id: str | None) -> dict:
