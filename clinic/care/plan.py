@@ -21,6 +21,7 @@ from clinic.records.validate import parse_utc
 SKEW = timedelta(minutes=10)
 DUPLICATE_WITHIN = timedelta(minutes=30)
 OPEN_STATES = ("not-yet-due", "due", "overdue")
+IMMUNE_ANTI_D = "immune-anti-d"   # alert: the engine judges anti-D immune (record_ids: the screens, first first)
 
 
 # ---- reading records -------------------------------------------------------------------
@@ -166,6 +167,7 @@ def _antibodies(h: _History, doses: list[dict], profile: Profile, alerts: list[A
     ab = profile.get("antibody")
     src = profile.section_source("antibody")
     out = _Antibodies(findings=[])
+    immune_alert: Alert | None = None
     window = timedelta(days=ab["passive_window_days"])
     for s in h.of("screen"):
         if s.get("result") != "positive":
@@ -185,8 +187,20 @@ def _antibodies(h: _History, doses: list[dict], profile: Profile, alerts: list[A
                 known_level = iu is not None or titre is not None
                 if rec == "immune":
                     origin, why = "immune", "recorded by the laboratory as immune"
+                    if recent and known_level and low:
+                        alerts.append(Alert("anti-d-origin-check", "warning",
+                                            f"the laboratory judged the anti-D of {s['sampled_at'][:10]} immune, "
+                                            f"although anti-D was given {(t - recent[-1]['_t']).days} days before and "
+                                            f"the level is low (it could be passive): the laboratory's judgement is "
+                                            f"used; a clinician confirms", src, [s["id"]]))
                 elif rec == "passive":
                     origin, why = "passive", "recorded by the laboratory as passive"
+                    if not recent:
+                        alerts.append(Alert("anti-d-origin-check", "warning",
+                                            f"the laboratory judged the anti-D of {s['sampled_at'][:10]} passive, but "
+                                            f"no anti-D is recorded in the {ab['passive_window_days']} days before the "
+                                            f"sample: record any dose given elsewhere or ask the laboratory to review; "
+                                            f"treated as passive meanwhile", src, [s["id"]]))
                 elif not recent:
                     origin, why = "immune", (f"no anti-D recorded in the {ab['passive_window_days']} days before the "
                                              f"sample, so not passive (record any anti-D given elsewhere)")
@@ -202,10 +216,14 @@ def _antibodies(h: _History, doses: list[dict], profile: Profile, alerts: list[A
                 if origin == "immune":
                     if out.immune_at is None:
                         out.immune_at, out.immune_id = t, s["id"]
-                        alerts.append(Alert("anti-d-immune", "danger",
-                                            f"immune anti-D found ({why}): the woman is sensitised; anti-D prophylaxis "
-                                            f"stops and the pregnancy follows the surveillance pathway",
-                                            src, [s["id"]]))
+                        # one alert for the pregnancy; record_ids: the first immune screen, then any later ones
+                        immune_alert = Alert(IMMUNE_ANTI_D, "danger",
+                                             f"immune anti-D found on {s['sampled_at'][:10]} ({why}): the woman is "
+                                             f"sensitised; anti-D prophylaxis stops and the pregnancy follows the "
+                                             f"surveillance pathway", src, [s["id"]])
+                        alerts.append(immune_alert)
+                    elif s["id"] not in immune_alert.record_ids:
+                        immune_alert.record_ids.append(s["id"])
                     out.surveillance = True
                 elif origin == "probable-passive":
                     alerts.append(Alert("anti-d-passive", "info",
@@ -312,6 +330,8 @@ class _Planner:
         self.assigned: dict[str, list[dict]] = {}
         self._assign_doses()
         self._booking()
+        self._partner_typing()
+        self._fetal_rhd_test()
         if self.prophylaxis:
             self._routine()
             self._events()
@@ -352,11 +372,17 @@ class _Planner:
             self.alert("fetal-rhd-negative-not-used", "info",
                        "cell-free fetal RHD negative, but this profile does not use targeted prophylaxis: "
                        "anti-D is still offered", self.p.section_source("routine"), [res["cffdna_id"]])
-        if pt.get("rhd") == "negative" and pt.get("paternity_certain") and self.p.get("routine.partner_negative_may_decline"):
-            self.alert("partner-rhd-negative", "info",
-                       "the baby's father is RhD negative and paternity is certain: the woman may choose to decline "
-                       "routine antenatal anti-D (her informed choice, recorded by the midwife)",
-                       self.p.section_source("routine"), [pt.get("id")])
+        self.partner_negative = bool(pt.get("rhd") == "negative" and pt.get("paternity_certain")
+                                     and self.p.get("routine.partner_negative_may_decline"))
+        self.partner_id = pt.get("id")
+        if self.partner_negative:
+            if self.p.get("routine.partner_negative_skips_routine"):
+                msg = ("the baby's father is RhD negative and paternity is certain: this profile marks routine "
+                       "antenatal anti-D not needed; she may still choose to have it")
+            else:
+                msg = ("the baby's father is RhD negative and paternity is certain: the woman may choose to decline "
+                       "routine antenatal anti-D (her informed choice, recorded by the midwife)")
+            self.alert("partner-rhd-negative", "info", msg, self.p.section_source("routine"), [pt.get("id")])
         return res
 
     # -- which dose covers what
@@ -453,6 +479,99 @@ class _Planner:
                     it.reason = (f"take the sample{' now' if it.state != 'not-yet-due' else ''}: within "
                                  f"{p.get(days_key)} days of booking")
 
+    def _window_until_birth(self, closes: datetime) -> datetime:
+        """The late end of a pregnancy-long item: the day after the EDD, or the birth if earlier
+        (never before ``closes``)."""
+        late = _midnight(self.dating.edd + timedelta(days=1), self.tz)
+        if self.born_at:
+            late = min(late, self.born_at)
+        return max(late, closes)
+
+    def _typing_item_state(self, it: PlanItem, records: list[dict], what: str) -> bool:
+        """Shared states of partner-typing and fetal-rhd-test. True when the item is decided."""
+        managed = self.rhd["managed_as"]
+        if managed == "positive":
+            it.state, it.reason = "not-needed", self.rhd["reason"]
+            return True
+        if records:
+            r = records[0]
+            t = self.h.time[r["id"]]
+            it.state, it.done_record_id, it.done_at = "done", r["id"], t
+            it.timeliness = "on-time" if it.closes is None or t <= it.closes else "late"
+            return True
+        if self.born_at:
+            if it.closes is not None and self.born_at <= it.closes:
+                it.state, it.reason = "not-needed", "the baby was born before the window closed: the cord blood typing decides"
+            else:
+                it.state, it.reason = "missed", f"no {what} recorded before the birth"
+            return True
+        if self.preg.get("status") == "ended-early":
+            it.state, it.reason = "not-needed", "the pregnancy ended early"
+            return True
+        return False
+
+    # -- the father's RhD type
+    def _partner_typing(self):
+        p, tz = self.p, self.tz
+        booked = date.fromisoformat(self.preg["booked_on"]) if self.preg.get("booked_on") else None
+        opens = _midnight(booked, tz) if booked else None
+        closes = _end_of_ga_day(self.dating, p.ga("partner_typing.closes_ga"), tz)
+        it = self.add(code="partner-typing", category="typing", title="RhD type of the baby's father", state="due",
+                      due=opens, opens=opens, closes=closes, late_until=self._window_until_birth(closes),
+                      reason="", source=p.section_source("partner_typing"))
+        if self.rhd["managed_as"] != "positive" and not p.get("partner_typing.offered"):
+            it.state, it.reason = "not-needed", "this profile does not offer partner typing (partner_typing.offered)"
+            return
+        known = [x for x in self.h.of("partner_typing") if x.get("rhd") in ("positive", "negative")]
+        if self._typing_item_state(it, known, "partner typing"):
+            if it.state == "done":
+                last = known[-1]
+                certain = {True: ", paternity certain", False: ", paternity not certain"}.get(
+                    last.get("paternity_certain"), "")
+                it.reason = f"the baby's father is RhD {last['rhd']}{certain}"
+            return
+        it.state = _state(self.now, opens, closes, it.late_until)
+        window = f"by {format_ga(p.ga('partner_typing.closes_ga'))}"
+        unknown = self.h.of("partner_typing")
+        it.reason = ("the father's RhD type is recorded as not known: type him if he is available" if unknown else
+                     "offer to type the baby's father (if he is known and willing)") + f", {window}; if he is RhD " \
+            "negative and paternity is certain she may choose to decline routine antenatal anti-D"
+        if self.rhd["managed_as"] in ("untyped", "retest"):
+            it.reason += "; only if she is RhD negative (her typing is not yet known)"
+
+    # -- cell-free fetal RHD test (targeted prophylaxis)
+    def _fetal_rhd_test(self):
+        p, tz = self.p, self.tz
+        o, c, l_ = (p.ga(f"fetal_rhd.{k}") for k in ("opens_ga", "closes_ga", "late_until_ga"))
+        opens = self.at_ga(o)
+        closes = _end_of_ga_day(self.dating, c, tz)
+        late = _end_of_ga_day(self.dating, l_, tz)
+        it = self.add(code="fetal-rhd-test", category="typing", title="Cell-free fetal RHD test", state="due",
+                      due=opens, opens=opens, closes=closes, late_until=late, reason="",
+                      source=p.section_source("fetal_rhd"))
+        if not p.get("routine.targeted_prophylaxis"):
+            it.state = "not-needed"
+            it.reason = ("this profile does not use targeted prophylaxis (routine.targeted_prophylaxis is false): "
+                         "anti-D is offered without a fetal RHD test")
+            return
+        tests = self.h.of("fetal_rhd")
+        if self._typing_item_state(it, tests, "fetal RHD test"):
+            if it.state == "done":
+                r = tests[-1]["result"]
+                it.reason = {"negative": "fetal RHD negative: routine antenatal and event anti-D not needed",
+                             "positive": "fetal RHD positive: anti-D prophylaxis as planned",
+                             "inconclusive": "fetal RHD inconclusive: managed as RhD positive, anti-D as planned"}[r]
+            return
+        it.state = _state(self.now, opens, closes, late)
+        it.reason = {"not-yet-due": f"a maternal blood sample for the fetal RHD test from {format_ga(o)}",
+                     "due": f"take the sample for the fetal RHD test now (from {format_ga(o)}, by {format_ga(c)})",
+                     "overdue": f"not sampled by {format_ga(c)}: take it now, the result still guides later anti-D "
+                                f"(until {format_ga(l_)})",
+                     "missed": f"no fetal RHD test by {format_ga(l_)}: anti-D is given as for an RhD-positive baby"
+                     }[it.state]
+        if self.rhd["managed_as"] in ("untyped", "retest"):
+            it.reason += "; only if she is RhD negative (her typing is not yet known)"
+
     # -- routine antenatal prophylaxis
     def _routine(self):
         p, tz = self.p, self.tz
@@ -487,6 +606,12 @@ class _Planner:
             elif fetal_neg:
                 it.state, it.reason = "not-needed", "cell-free fetal RHD negative: routine antenatal anti-D not needed"
                 it.related_id = self.fetal["cffdna_id"]
+            elif self.partner_negative and p.get("routine.partner_negative_skips_routine"):
+                it.state = "not-needed"
+                it.reason = ("the baby's father is RhD negative and paternity is certain: routine antenatal anti-D "
+                             "not needed (profile setting routine.partner_negative_skips_routine); give it if she "
+                             "chooses to have it")
+                it.related_id = self.partner_id
             elif self.born_at and self.born_at < opens:
                 it.state, it.reason = "not-needed", "born before this dose was due"
             elif self.born_at:

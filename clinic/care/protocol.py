@@ -36,7 +36,10 @@ SPEC: dict[str, Any] = {
     "booking.source": "str", "booking.typing_within_days": "days", "booking.screen_within_days": "days",
     "pre_dose_screen.source": "str", "pre_dose_screen.required": "bool", "pre_dose_screen.opens_ga": "ga",
     "routine.source": "str", "routine.regimen": "str", "routine.targeted_prophylaxis": "bool",
-    "routine.partner_negative_may_decline": "bool",
+    "routine.partner_negative_may_decline": "bool", "routine.partner_negative_skips_routine": "bool",
+    "partner_typing.source": "str", "partner_typing.offered": "bool", "partner_typing.closes_ga": "ga",
+    "fetal_rhd.source": "str", "fetal_rhd.opens_ga": "ga", "fetal_rhd.closes_ga": "ga",
+    "fetal_rhd.late_until_ga": "ga",
     "events.source": "str", "events.deadline_hours": "hours", "events.late_window_days": "days",
     "events.after_routine_dose_needs_own_dose": "bool", "events.repeat_for_ongoing_bleeding": "bool",
     "events.repeat_from_ga": "ga", "events.repeat_every_days": "days", "events.repeat_dose_iu": "dose",
@@ -339,6 +342,12 @@ def _validate(data: dict[str, Any]) -> None:
             if not o <= c <= l_:
                 raise ProfileError(f"profile {pid}: routine.regimens.{name}.doses.{i}: need opens_ga <= closes_ga "
                                    f"<= late_until_ga")
+    fr = data["fetal_rhd"]
+    if not parse_ga(fr["opens_ga"]) <= parse_ga(fr["closes_ga"]) <= parse_ga(fr["late_until_ga"]):
+        raise ProfileError(f"profile {pid}: fetal_rhd: need opens_ga <= closes_ga <= late_until_ga")
+    if data["routine"]["partner_negative_skips_routine"] and not data["routine"]["partner_negative_may_decline"]:
+        raise ProfileError(f"profile {pid}: routine.partner_negative_skips_routine = true needs "
+                           f"routine.partner_negative_may_decline = true")
     bands = sorted(data["events"]["bands"], key=lambda b: parse_ga(b["from_ga"]))
     if not bands:
         raise ProfileError(f"profile {pid}: events.bands is empty")

@@ -44,6 +44,9 @@ EVENT_DOSE_PREFIX = "event-dose:"
 CODE_POSTPARTUM_DOSE = "postpartum-dose"
 CODE_POSTPARTUM_FMH = "postpartum-fmh"
 CODE_CORD_TYPING = "cord-typing"
+CODE_PARTNER_TYPING = "partner-typing"
+CODE_FETAL_RHD_TEST = "fetal-rhd-test"
+ALERT_IMMUNE_ANTI_D = "immune-anti-d"
 
 
 class ReportError(ValueError):
@@ -77,7 +80,7 @@ class Case:
     plan: Any                    # clinic.care Plan
     facility: str = ""           # attributed facility (see ATTRIBUTION)
     last_facility: str = ""      # facility of the latest entry
-    uses_fetal_rhd: bool = False  # the profile offers targeted prophylaxis by cell-free fetal RHD
+    uses_fetal_rhd: bool = False  # kept for callers; the report reads the plan's fetal-rhd-test item instead
 
     def __post_init__(self):
         if not self.facility:
@@ -132,6 +135,9 @@ class Case:
     @property
     def managed_as(self) -> str | None:
         return _a(_a(self.plan, "rhd"), "managed_as")
+
+    def alerts_with(self, code: str) -> list:
+        return [a for a in (_a(self.plan, "alerts", []) or []) if _a(a, "code") == code]
 
     def of_kind(self, kind: str) -> list[dict]:
         return self._by_kind.get(kind, [])
@@ -282,26 +288,32 @@ def _neg_screen(case, month, tz):
 
 
 @indicator("neg_partner_typed", S_NEG, "Partner typed",
-           "Of the RhD-negative women booked in the month, those with the baby's father's RhD "
-           "type recorded as positive or negative.",
-           "partner RhD known", "RhD-negative women booked in the month")
+           "Of the RhD-negative women booked in the month for whom the care engine plans partner "
+           "typing (its 'partner-typing' item, not 'not needed'), those whose item the engine counts "
+           "as done (the baby's father's RhD recorded as positive or negative).",
+           "partner RhD known", "RhD-negative women booked in the month (partner typing planned)")
 def _partner(case, month, tz):
-    if not _neg_booked(case, month):
+    it = case.item(CODE_PARTNER_TYPING)
+    if not _neg_booked(case, month) or not eligible(it):
         return
-    ok = any(p.get("rhd") in ("positive", "negative") for p in case.of_kind("partner_typing"))
-    yield Hit(case, ok, "partner-typed" if ok else "partner-not-typed")
+    ok = done(it)
+    yield Hit(case, ok, "partner-typed" if ok else "partner-not-typed", None, CODE_PARTNER_TYPING,
+              _dt(_a(it, "closes")) or _booking_due(case, tz), _a(it, "done_record_id"))
 
 
 @indicator("neg_fetal_rhd", S_NEG, "Fetal RHD tested (where used)",
-           "Of the RhD-negative women booked in the month, where the protocol profile uses "
-           "cell-free fetal RHD testing to target prophylaxis, those with a fetal RHD result "
-           "recorded. Empty where the profile does not use the test.",
-           "fetal RHD result recorded", "RhD-negative women booked in the month (profile uses the test)")
+           "Of the RhD-negative women booked in the month for whom the care engine plans a cell-free "
+           "fetal RHD test (its 'fetal-rhd-test' item, not 'not needed': the profile uses targeted "
+           "prophylaxis), those whose test the engine counts as done. Empty where the profile does "
+           "not use the test.",
+           "fetal RHD result recorded", "RhD-negative women booked in the month (fetal RHD test planned)")
 def _fetal(case, month, tz):
-    if not _neg_booked(case, month) or not case.uses_fetal_rhd:
+    it = case.item(CODE_FETAL_RHD_TEST)
+    if not _neg_booked(case, month) or not eligible(it):
         return
-    ok = bool(case.of_kind("fetal_rhd"))
-    yield Hit(case, ok, "tested" if ok else "not-tested", None, None, _booking_due(case, tz))
+    ok = done(it)
+    yield Hit(case, ok, "tested" if ok else "not-tested", None, CODE_FETAL_RHD_TEST, _booking_due(case, tz),
+              _a(it, "done_record_id"))
 
 
 def closed_in(month: Month, closes: datetime | None, tz: tzinfo) -> bool:
@@ -526,11 +538,17 @@ def _pp_fmh(case, month, tz):
 
 
 def _first_immune_anti_d(case) -> dict | None:
-    screens = sorted(case.of_kind("screen"), key=lambda s: s["sampled_at"])
-    for s in screens:
-        if "anti-D" in (s.get("antibodies") or []) and s.get("anti_d_origin") == "immune":
-            return s
-    return None
+    """The first screen the care engine judged immune anti-D (its 'immune-anti-d' alert names
+    the screens), or None. The engine judges it, not the laboratory's field alone."""
+    screens = []
+    for a in case.alerts_with(ALERT_IMMUNE_ANTI_D):
+        for rid in _a(a, "record_ids") or []:
+            s = case.entry(rid)
+            if s is None or not s.get("sampled_at"):
+                raise ReportError(f"care plan alert {ALERT_IMMUNE_ANTI_D} of pregnancy {case.id} names screen "
+                                  f"{rid!r}, which is not among its records")
+            screens.append(s)
+    return min(screens, key=lambda s: (s["sampled_at"], s["id"])) if screens else None
 
 
 def prophylaxis_history(case, before: datetime) -> list[dict]:
@@ -544,8 +562,9 @@ def prophylaxis_history(case, before: datetime) -> list[dict]:
 
 
 @indicator("new_sensitisations", S_OUTCOME, "New immune anti-D found",
-           "Pregnancies whose first antibody screen showing anti-D judged immune (not passive "
-           "from a recent dose) was sampled in the month. Each is listed with the anti-D doses "
+           "Pregnancies whose first antibody screen showing anti-D that the care engine judges "
+           "immune (its 'immune-anti-d' alert: the laboratory's judgement where recorded, otherwise "
+           "the engine's from the level and the doses given before) was sampled in the month. Each is listed with the anti-D doses "
            "of the pregnancy before it and the earlier anti-D history as recorded at booking.",
            "new immune sensitisations", None)
 def _new_sens(case, month, tz):

@@ -22,7 +22,7 @@ def test_low_level_after_recent_prophylaxis_is_probably_passive():
 def test_level_above_the_passive_limit_is_immune():
     plan = make_plan(booked_negative() + ROUTINE + [_anti_d(anti_d_iu_ml=1.0)], now=utc(2026, 10, 26))
     assert plan.pathway == "surveillance"
-    assert "anti-d-immune" in alert_codes(plan)
+    assert "immune-anti-d" in alert_codes(plan)
     assert item(plan, "routine-dose-2").state == "not-needed"
     assert item(plan, "postpartum-dose").state == "not-needed"
 
