@@ -113,6 +113,33 @@ def dict_without(d: dict, *keys) -> dict:
     return {k: v for k, v in (d or {}).items() if k not in keys}
 
 
+# Which entry form completes a plan item, by the start of its code (plan item codes are stable).
+_ITEM_ENTRY_KIND = (
+    ("booking-typing", "typing"),
+    ("booking-screen", "screen"),
+    ("pre-dose-screen", "screen"),
+    ("partner-typing", "partner_typing"),
+    ("fetal-rhd-test", "fetal_rhd"),
+    ("event-fmh:", "fmh"),
+    ("postpartum-fmh", "fmh"),
+    ("cord-typing", "birth"),
+    ("surveillance-titre", "screen"),
+    ("surveillance-doppler", "doppler"),
+)
+
+
+def entry_kind_for(item) -> str | None:
+    """The record kind whose entry completes this plan item: "dose" for a proposed anti-D dose."""
+    get = item.get if isinstance(item, dict) else (lambda k, d=None: getattr(item, k, d))
+    if get("dose_iu"):
+        return "dose"
+    code = get("code") or ""
+    for prefix, kind in _ITEM_ENTRY_KIND:
+        if code.startswith(prefix):
+            return kind
+    return None
+
+
 def init_app(app: Flask) -> None:
     app.add_template_filter(dict_without, "dict_without")
     app.add_template_filter(local, "local")
@@ -123,6 +150,7 @@ def init_app(app: Flask) -> None:
     app.add_template_global(today_local, "today_local")
     app.add_template_global(now_local, "now_local")
     app.add_template_global(KINDS, "KINDS")
+    app.add_template_global(entry_kind_for, "entry_kind_for")
     from clinic.web.stock import lots_on_hand
 
     app.add_template_global(lots_on_hand, "lots_on_hand")

@@ -13,6 +13,7 @@ FILTERS = {
     "routine-week": "Routine doses this week",
     "postpartum": "Postpartum",
     "events": "Events",
+    "tests": "Typing and screens",
     "surveillance": "Surveillance",
 }
 # Pregnancies whose plans can still hold something to do here.
@@ -35,8 +36,10 @@ def _matches(item, flt: str, now) -> bool:
         return cat in ("postpartum", "birth")
     if flt == "events":
         return cat == "event"
+    if flt == "tests":
+        return cat in ("screen", "typing")
     if flt == "surveillance":
-        return cat in ("surveillance", "screen", "typing")
+        return cat == "surveillance"
     raise ValueError(flt)
 
 

@@ -54,13 +54,15 @@ def test_worklist_is_most_urgent_first(client, booked, event_2h_ago):
 
 
 @pytest.mark.parametrize("flt,category", [("events", "event"), ("postpartum", "postpartum"),
-                                          ("surveillance", "surveillance"), ("routine-week", "routine")])
+                                          ("surveillance", "surveillance"), ("tests", "typing"),
+                                          ("routine-week", "routine")])
 def test_filters_keep_only_their_category(client, booked, event_2h_ago, flt, category):
     r = client.get(f"/api/v1/worklist?filter={flt}")
     assert r.status_code == 200
     cats = {i["item"]["category"] for i in r.get_json()["items"]}
     allowed = {"events": {"event"}, "postpartum": {"postpartum", "birth"},
-               "surveillance": {"surveillance", "screen", "typing"}, "routine-week": {"routine"}}[flt]
+               "surveillance": {"surveillance"}, "tests": {"screen", "typing"},
+               "routine-week": {"routine"}}[flt]
     assert cats <= allowed
     assert client.get(f"/?filter={flt}").status_code == 200
 
@@ -117,3 +119,19 @@ def test_a_woman_brought_on_her_card_is_on_today_and_bundle_copies_are_not(clien
     bundle = _woman_with_event("Bundled Copy", {"via": "bundle", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"})
     ids = {i["pregnancy_id"] for i in client.get("/api/v1/worklist").get_json()["items"]}
     assert card["id"] in ids and bundle["id"] not in ids
+
+
+def test_record_page_offers_the_entry_that_completes_each_open_item(client, booked, event_2h_ago):
+    # The booking fixture leaves the booking screen or typing and the event's dose open: each open
+    # item that an entry completes links to that entry's form, and only dose items say "dose".
+    from clinic.web.helpers import entry_kind_for
+
+    assert entry_kind_for({"code": "event-fmh:abc", "dose_iu": None}) == "fmh"
+    assert entry_kind_for({"code": "event-dose:abc", "dose_iu": 250}) == "dose"
+    assert entry_kind_for({"code": "partner-typing"}) == "partner_typing"
+    assert entry_kind_for({"code": "something-else"}) is None
+    pid = booked["pregnancy"]["id"]
+    html = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
+    assert "Record this dose" in html
+    assert f"/pregnancies/{pid}/add/partner_typing" in html  # partner typing is due at 20 weeks
+    assert html.count('class="item-actions"') >= 2
