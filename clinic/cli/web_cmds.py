@@ -27,6 +27,9 @@ def _run(data_dir: Path, host: str | None, port: int, threads: int, lan: bool) -
         app = create_app(data_dir)
     except (ConfigError, StoreError) as e:
         fail(str(e))
+    from clinic.web.housekeeping import start_daily_backups
+
+    start_daily_backups(app.extensions["rhledger"]["store"])
     if lan:
         from clinic.web.lan import serve_https
 
