@@ -20,9 +20,13 @@ class AuditLog:
     def path_for(self, facility: str, at: str) -> Path:
         return self.root / facility / f"{at[:7]}.jsonl"
 
+    @staticmethod
+    def line(entry: dict) -> str:
+        """One entry as its audit line (no newline)."""
+        return json.dumps(entry, ensure_ascii=False, separators=(",", ":"), sort_keys=True)
+
     def append(self, entry: dict) -> None:
-        line = json.dumps(entry, ensure_ascii=False, separators=(",", ":"), sort_keys=True)
-        append_line(self.path_for(entry["facility"], entry["at"]), line)
+        append_line(self.path_for(entry["facility"], entry["at"]), self.line(entry))
 
     def files(self) -> list[Path]:
         if not self.root.is_dir():

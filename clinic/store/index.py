@@ -11,7 +11,7 @@ import os
 from pathlib import Path
 from typing import NamedTuple
 
-from clinic.store.storage import append_line
+from clinic.store.storage import append_line, append_lines, gc_paused
 
 
 class Loc(NamedTuple):
@@ -21,7 +21,14 @@ class Loc(NamedTuple):
     pregnancy_id: str | None
 
 
+BLOCK = 1 << 22  # read the log 4 MiB at a time: a district index is ~150 MiB
+
+
 class IndexLog:
+    """The parsed log. ``locs`` maps id -> (partition, kind, woman_id, pregnancy_id) as a plain
+    tuple (``get`` gives a ``Loc``); repeated strings (partitions, kinds, parent ids) are shared,
+    so a district index of a million lines stays a few hundred bytes a record."""
+
     def __init__(self, path: Path, on_corrupt):
         self.path = Path(path)
         self._on_corrupt = on_corrupt
@@ -30,10 +37,12 @@ class IndexLog:
     def _reset(self) -> None:
         self._inode: int | None = None
         self._offset = 0
-        self.locs: dict[str, Loc] = {}
+        self.locs: dict[str, tuple[str, str, str | None, str | None]] = {}
         self.order: list[str] = []
+        self.by_kind: dict[str, list[str]] = {}  # kind -> ids, creation order
         self.children: dict[str, list[str]] = {}  # pregnancy id -> entry ids
         self.pregnancies_of: dict[str, list[str]] = {}  # woman id -> pregnancy ids
+        self._strings: dict[str, str] = {}  # one copy of each partition, kind and parent id
 
     def refresh(self) -> None:
         """Read what other processes appended since the last call."""
@@ -51,36 +60,74 @@ class IndexLog:
             if st.st_size == self._offset:
                 return
             fh.seek(self._offset)
-            chunk = fh.read(st.st_size - self._offset)
-        end = chunk.rfind(b"\n")
-        if end < 0:
-            return
-        lineno = self._offset
-        for raw in chunk[: end + 1].splitlines():
-            self._add(raw, lineno)
-            lineno += len(raw) + 1
-        self._offset += end + 1
+            left = st.st_size - self._offset
+            carry = b""
+            with gc_paused():
+                while left > 0:
+                    block = fh.read(min(BLOCK, left))
+                    if not block:
+                        break
+                    left -= len(block)
+                    block = carry + block if carry else block
+                    end = block.rfind(b"\n")
+                    if end < 0:
+                        carry = block
+                        continue
+                    self._add_lines(block[:end].decode("utf-8", errors="replace").split("\n"), self._offset)
+                    self._offset += end + 1
+                    carry = block[end + 1:]
+        # A torn last line (no newline yet) stays unread until it is completed or trimmed.
 
-    def _add(self, raw: bytes, offset: int) -> None:
-        parts = raw.decode("utf-8", errors="replace").split(" ")
-        if len(parts) != 5 or not all(parts):
-            raise self._on_corrupt(self.path, ValueError(f"bad index line at byte {offset}: {raw[:120]!r}"))
-        rid, partition, kind, wid, pid = parts
-        loc = Loc(partition, kind, None if wid == "-" else wid, None if pid == "-" else pid)
-        if rid in self.locs:
-            return  # a create retried after a crash between the index line and the partition write
-        self.locs[rid] = loc
-        self.order.append(rid)
-        if loc.pregnancy_id and kind != "pregnancy":
-            self.children.setdefault(loc.pregnancy_id, []).append(rid)
-        if kind == "pregnancy" and loc.woman_id:
-            self.pregnancies_of.setdefault(loc.woman_id, []).append(rid)
+    def _add_lines(self, lines: list[str], offset: int) -> None:
+        locs, order, strings = self.locs, self.order, self._strings
+        children, pregnancies_of, by_kind = self.children, self.pregnancies_of, self.by_kind
+        share = strings.setdefault
+        for n, line in enumerate(lines):
+            parts = line.split(" ")
+            if len(parts) != 5 or not all(parts):
+                at = offset + sum(len(x.encode("utf-8")) + 1 for x in lines[:n])
+                raise self._on_corrupt(self.path, ValueError(f"bad index line at byte {at}: {line[:120]!r}"))
+            rid, partition, kind, wid, pid = parts
+            if rid in locs:
+                continue  # a create retried after a crash between the index line and the partition write
+            partition = share(partition, partition)
+            kind = share(kind, kind)
+            wid = None if wid == "-" else share(wid, wid)
+            pid = None if pid == "-" else share(pid, pid)
+            if kind == "pregnancy" or kind == "woman":
+                rid = share(rid, rid)  # the parent id of later lines: one string object for all
+            locs[rid] = (partition, kind, wid, pid)
+            order.append(rid)
+            ids = by_kind.get(kind)
+            if ids is None:
+                ids = by_kind[kind] = []
+            ids.append(rid)
+            if pid is not None and kind != "pregnancy":
+                got = children.get(pid)
+                if got is None:
+                    children[pid] = [rid]
+                else:
+                    got.append(rid)
+            if kind == "pregnancy" and wid is not None:
+                pregnancies_of.setdefault(wid, []).append(rid)
 
     def get(self, rid: str) -> Loc | None:
-        return self.locs.get(rid)
+        t = self.locs.get(rid)
+        return Loc(*t) if t is not None else None
+
+    def partition_of(self, rid: str) -> str:
+        return self.locs[rid][0]
+
+    @staticmethod
+    def line(rid: str, loc: Loc) -> str:
+        return " ".join((rid, loc.partition, loc.kind, loc.woman_id or "-", loc.pregnancy_id or "-"))
 
     def append(self, rid: str, loc: Loc) -> None:
         """Durably add one record's location (store lock held)."""
-        line = " ".join((rid, loc.partition, loc.kind, loc.woman_id or "-", loc.pregnancy_id or "-"))
-        append_line(self.path, line)
+        append_line(self.path, self.line(rid, loc))
+        self.refresh()
+
+    def append_many(self, items: list[tuple[str, Loc]]) -> None:
+        """Durably add many locations with one write and one fsync (store lock held)."""
+        append_lines(self.path, [self.line(rid, loc) for rid, loc in items])
         self.refresh()

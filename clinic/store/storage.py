@@ -7,10 +7,12 @@ crash the file holds either the old or the new content, never a mix.
 """
 from __future__ import annotations
 
+import gc
 import json
 import os
 import threading
 from collections import OrderedDict
+from contextlib import contextmanager
 from pathlib import Path
 from typing import Any
 
@@ -19,6 +21,34 @@ from tinydb.storages import Storage
 from clinic.store.errors import StoreCorrupt
 
 TABLE = "records"
+
+
+_gc_lock = threading.Lock()
+_gc_depth = 0
+_gc_was_enabled = False
+
+
+@contextmanager
+def gc_paused():
+    """No cyclic garbage collection while bulk data is parsed (nestable, thread-safe).
+
+    Parsing a district index or a partition allocates millions of containers; each
+    allocation burst would set off full collections that walk everything already loaded.
+    The data parsed holds no reference cycles, so nothing is lost by pausing.
+    """
+    global _gc_depth, _gc_was_enabled
+    with _gc_lock:
+        if _gc_depth == 0:
+            _gc_was_enabled = gc.isenabled()
+            gc.disable()
+        _gc_depth += 1
+    try:
+        yield
+    finally:
+        with _gc_lock:
+            _gc_depth -= 1
+            if _gc_depth == 0 and _gc_was_enabled:
+                gc.enable()
 
 
 def fsync_dir(path: Path) -> None:
@@ -75,28 +105,55 @@ def append_line(path: Path, line: str) -> None:
 
     Call with the store lock held (the trim must not race another writer).
     """
+    append_lines(path, [line])
+
+
+def append_lines(path: Path, lines: list[str]) -> None:
+    """Append many lines to a log file with one write and one fsync (torn tail trimmed first).
+
+    Call with the store lock held. Durable on return.
+    """
+    if not lines:
+        return
     path = Path(path)
     ensure_dir(path.parent)
-    data = (line.rstrip("\n") + "\n").encode("utf-8")
+    data = "".join(line.rstrip("\n") + "\n" for line in lines).encode("utf-8")
     new = not path.exists()
     with open(path, "a+b") as fh:
-        size = fh.seek(0, os.SEEK_END)
-        if size:
-            fh.seek(size - 1)
-            if fh.read(1) != b"\n":
-                # A crash cut the previous append short: that line was never acknowledged.
-                start = max(0, size - (1 << 20))
-                fh.seek(start)
-                cut = fh.read().rfind(b"\n")
-                if cut < 0 and start > 0:
-                    raise StoreCorrupt(f"{path} ends with more than 1 MiB without a line break; "
-                                       f"not a log this store wrote. Left untouched.")
-                fh.truncate(start + cut + 1)
-        fh.write(data)  # "a" mode: always at the end
+        _trim_torn_tail(fh, path)
+        fh.write(data)
         fh.flush()
         os.fsync(fh.fileno())
     if new:
         fsync_dir(path.parent)
+
+
+def _trim_torn_tail(fh, path: Path) -> None:
+    size = fh.seek(0, os.SEEK_END)
+    if size:
+        fh.seek(size - 1)
+        if fh.read(1) != b"\n":
+            # A crash cut the previous append short: that line was never acknowledged.
+            start = max(0, size - (1 << 20))
+            fh.seek(start)
+            cut = fh.read().rfind(b"\n")
+            if cut < 0 and start > 0:
+                raise StoreCorrupt(f"{path} ends with more than 1 MiB without a line break; "
+                                   f"not a log this store wrote. Left untouched.")
+            fh.truncate(start + cut + 1)
+
+
+def complete_size(path: Path) -> int:
+    """Bytes of ``path`` up to and including its last line break (0 when absent or torn)."""
+    try:
+        with open(path, "rb") as fh:
+            size = fh.seek(0, os.SEEK_END)
+            if not size:
+                return 0
+            fh.seek(size - 1)
+            return size if fh.read(1) == b"\n" else 0  # torn: a reader starts from the top
+    except FileNotFoundError:
+        return 0
 
 
 def file_key(st: os.stat_result) -> tuple[int, int, int]:
@@ -117,6 +174,24 @@ class PartitionCache:
         self._items: OrderedDict[Path, tuple[tuple, dict, dict | None]] = OrderedDict()
         self._lock = threading.RLock()
         self._on_corrupt = on_corrupt  # builds the StoreCorrupt message (names backup + command)
+
+    def scan(self, path: Path) -> tuple[dict | None, bool]:
+        """(content, fresh) for a one-pass read of many partitions: a cached copy when current
+        (fresh False: shared, copy before handing out), else parsed and NOT cached (fresh True:
+        nobody else holds it), so a full scan neither evicts the working set nor copies."""
+        path = Path(path)
+        try:
+            fh = open(path, "rb")
+        except FileNotFoundError:
+            return None, True
+        with fh:
+            key = file_key(os.fstat(fh.fileno()))
+            with self._lock:
+                hit = self._items.get(path)
+                if hit is not None and hit[0] == key:
+                    return hit[1], False
+            raw = fh.read()
+        return self._parse(path, raw), True
 
     def load(self, path: Path) -> dict | None:
         """The parsed content of ``path`` (None when it does not exist)."""
@@ -145,7 +220,8 @@ class PartitionCache:
 
     def _parse(self, path: Path, raw: bytes) -> dict:
         try:
-            data = json.loads(raw.decode("utf-8"))
+            with gc_paused():
+                data = json.loads(raw.decode("utf-8"))
             if not isinstance(data, dict) or not isinstance(data.get(TABLE, {}), dict):
                 raise ValueError(f"top level is not a TinyDB document with a {TABLE!r} table")
         except (UnicodeDecodeError, ValueError) as e:

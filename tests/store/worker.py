@@ -4,6 +4,8 @@
     amend DATA RECORD_ID N TAG       amend one record N times without expected_version
 (create and amend print "ready", then wait for a line on stdin so that workers start together)
     forever DATA PREGNANCY_ID        create entries until killed, printing each acknowledged id
+    import DATA BATCH.json           merge_foreign_many the records of the file; prints "start"
+                                     just before the call and "done" after it
 """
 from __future__ import annotations
 
@@ -44,6 +46,14 @@ def main(argv: list[str]) -> None:
             lab = f"{cur.get('lab', '')}|{i}"[-100:]
             store.amend(rid, {"lab": lab + f"-{argv[4] if len(argv) > 4 else 'x'}"}, by="worker",
                         reason="concurrency test", now=NOW)
+        out.write("done\n")
+    elif cmd == "import":
+        import json
+
+        batch = json.loads(open(argv[2], encoding="utf-8").read())
+        out.write("start\n")
+        out.flush()
+        store.merge_foreign_many(batch, now=NOW)
         out.write("done\n")
     else:
         raise SystemExit(f"unknown command {cmd}")
