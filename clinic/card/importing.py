@@ -10,8 +10,8 @@ Rules:
    similar name and the same birth date or phone) runs, and a possible match stops the
    import (``PossibleDuplicate``) until the user chooses: ``woman_id=`` a local woman (the
    card's records are attached to her) or ``new_woman=True``.
-3. Every record is merged by its UUID through ``Store.merge_foreign``. A local copy with the
-   same or a higher version is kept as it is (never overwritten by the card), so importing
+3. Every record is merged by its UUID through ``Store.merge_foreign_many`` (all validated
+   before any is written). A local copy with the same or a higher version is kept as it is (never overwritten by the card), so importing
    the same card twice, or an older issue after a newer one, changes nothing.
 4. Each record taken in carries ``origin = {via: "card", facility, issue}``, and the import
    is logged in ``<data>/cards/imported.jsonl`` (pregnancy, issuer, issue, card code, counts).
@@ -113,6 +113,7 @@ def import_reading(store, reading: Reading, *, data_dir: Path, by: str = IMPORTE
             raise PossibleDuplicate(dups)
     result = ImportResult(preg["id"], attach_to or woman["id"], c.issuer_id, c.issue, linked_to=attach_to)
     records = ([] if attach_to else [woman]) + [dict(preg, woman_id=attach_to or woman["id"])] + entries
+    incoming = []
     for rec in records:
         local = store.get(rec["id"])
         if local is not None and local.get("version", 1) >= rec.get("version", 1):
@@ -120,7 +121,10 @@ def import_reading(store, reading: Reading, *, data_dir: Path, by: str = IMPORTE
                        if k not in ("created_by", "amended_by", "origin", "schema", "amendments", "woman_id"))
             result.outcomes[rec["id"]] = "unchanged" if same else "kept-local"
             continue
-        result.outcomes[rec["id"]] = store.merge_foreign(_foreign(rec, origin, attach_to), by=by, now=now)
+        incoming.append(_foreign(rec, origin, attach_to))
+    # One call: every record is validated before any is written, so a card never half-imports.
+    for rec, outcome in zip(incoming, store.merge_foreign_many(incoming, by=by, now=now)):
+        result.outcomes[rec["id"]] = outcome
     append_line(Path(data_dir) / CARDS_DIR / IMPORTED_FILE, json.dumps({
         "pregnancy_id": preg["id"], "issuer": c.issuer_id, "issue": c.issue, "card_code": reading.code,
         "trust": reading.trust, "at": utc_text(now), "by": by, "counts": result.counts,
