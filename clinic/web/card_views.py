@@ -12,24 +12,18 @@ from __future__ import annotations
 
 from flask import Blueprint, Response, abort, flash, redirect, render_template, request, url_for
 
+from clinic.card.qrtext import MAX_TEXT
 from clinic.web.auth import WRITE_ROLES, current_user, login_required, role_required
-from clinic.web.db import get_settings, get_store, utcnow
+from clinic.web.db import get_data_dir, get_profile, get_settings, get_store, utcnow
 
 bp = Blueprint("card", __name__, url_prefix="/cards")
 
-MAX_TEXT = 8000
 MAX_PHOTO = 12 * 1024 * 1024  # the app's MAX_CONTENT_LENGTH may be lower; it is checked first
-
-
-def _data_dir():
-    from flask import current_app
-    from pathlib import Path
-    return Path(current_app.config["DATA_DIR"])
 
 
 def _trust():
     from clinic.signing.trust import load_trust
-    return load_trust(_data_dir())
+    return load_trust(get_data_dir())
 
 
 def _plan(reading):
@@ -39,7 +33,7 @@ def _plan(reading):
     if c is None:
         return None
     try:
-        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow())
+        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow(), profile=get_profile())
     except Exception as e:  # noqa: BLE001 - a plan that cannot be made must not hide the reading
         return {"error": f"the care engine could not plan from this card ({type(e).__name__}: {e})", "items": []}
 
@@ -124,14 +118,17 @@ def import_card():
     woman_id = request.form.get("woman_id") or None
     new_woman = request.form.get("new_woman") == "1"
     try:
-        res = import_reading(get_store(), reading, data_dir=_data_dir(), by=current_user().username,
+        res = import_reading(get_store(), reading, data_dir=get_data_dir(), by=current_user().username,
                              woman_id=woman_id, new_woman=new_woman, now=utcnow())
     except PossibleDuplicate as e:
         return _show(reading, status=409, text=text, duplicates=e.candidates)
     except (CardImportError, ValidationError, StoreError) as e:
         return _show(reading, status=422, text=text, import_error=str(e))
-    counts = ", ".join(f"{n} {k}" for k, n in sorted(res.counts.items()))
-    flash(f"Card issue {res.issue} of {res.issuer} imported: {counts}.")
+    words = {"created": "added", "updated": "updated", "unchanged": "already here",
+             "kept-local": "kept as recorded here"}
+    counts = ", ".join(f"{n} {words.get(k, k)}" for k, n in sorted(res.counts.items()))
+    issuer = (reading.content.issuer_name if reading.content else "") or res.issuer
+    flash(f"Card issue {res.issue} of {issuer} imported: {counts}.")
     return redirect(url_for("records.pregnancy", pregnancy_id=res.pregnancy_id))
 
 
@@ -144,8 +141,8 @@ def _issue(pregnancy_id):
     if p is None or p["kind"] != "pregnancy":
         abort(404, f"there is no pregnancy {pregnancy_id}")
     try:
-        return issue_card(_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
-                          now=utcnow())
+        return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
+                          now=utcnow(), profile=get_profile())
     except (CardIssueError, KeyStoreError) as e:
         abort(500, f"the card could not be issued: {e}")
 
@@ -160,10 +157,8 @@ def _file(data: bytes, mimetype: str, name: str, download: bool):
 @login_required
 def pregnancy_card(pregnancy_id):
     ic = _issue(pregnancy_id)
-    _, _, entries = get_store().history(pregnancy_id)
-    has_referral = any(e["kind"] == "referral" and not e.get("voided") for e in entries)
     return render_template("card/print.html", ic=ic, v=ic.view, pregnancy_id=pregnancy_id,
-                           has_referral=has_referral, nav_active="cards")
+                           has_referral=bool(ic.view["referrals"]), nav_active="cards")
 
 
 @bp.route("/pregnancy/<pregnancy_id>/card.pdf")

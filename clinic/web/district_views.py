@@ -13,14 +13,14 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from flask import Blueprint, Response, abort, current_app, jsonify, render_template, request
+from flask import Blueprint, Response, abort, jsonify, render_template, request
 
 from clinic.config import ROLES_SEEING_NAMES
 from clinic.reports import outputs
 from clinic.reports.bundle import EXTENSION, export_bundle, export_state, import_bundle, import_log
 from clinic.reports.month import Month, MonthFormatError
 from clinic.web.auth import current_user, login_required, role_required
-from clinic.web.db import get_settings, get_store, utcnow
+from clinic.web.db import get_data_dir, get_settings, get_store, utcnow
 
 bp = Blueprint("district", __name__, url_prefix="/district")
 
@@ -28,10 +28,6 @@ IMPORT_ROLES = ("district-officer", "admin")
 EXPORT_ROLES = ("midwife", "clinician", "lab", "admin", "district-officer")
 AGGREGATE_FORMATS = ("csv", "pdf", "json", "fhir")
 MAX_BUNDLE_BYTES = 64 * 1024 * 1024
-
-
-def _data_dir() -> Path:
-    return Path(current_app.config["DATA_DIR"])
 
 
 def _month() -> Month:
@@ -51,7 +47,7 @@ def may_see_names() -> bool:
 
 
 def _prepared(month: Month):
-    return outputs.prepare(get_store(), _data_dir(), month, now=utcnow())
+    return outputs.prepare(get_store(), get_data_dir(), month, now=utcnow())
 
 
 @bp.route("/")
@@ -70,7 +66,13 @@ def index():
                            indicators=INDICATORS, charts=charts, caution=CAUTION,
                            notes=[NULL_PERCENT, ATTRIBUTION, TIME_ZONE_NOTE], names=may_see_names(),
                            formats=AGGREGATE_FORMATS, follow_up_count=len(rep.follow_up) + len(rep.sensitisations),
-                           district_key=DISTRICT, nav_active="district")
+                           district_key=DISTRICT, nav_active="district",
+                           can_import=_role_in(IMPORT_ROLES), can_export=_role_in(EXPORT_ROLES))
+
+
+def _role_in(roles) -> bool:
+    u = current_user()
+    return u is not None and u.role in roles
 
 
 @bp.route("/report.<fmt>")
@@ -107,7 +109,7 @@ def follow_up():
 @bp.route("/import", methods=["GET"])
 @role_required(*IMPORT_ROLES)
 def import_page():
-    log = list(reversed(import_log(_data_dir())))[:50]
+    log = list(reversed(import_log(get_data_dir())))[:50]
     return render_template("district/import.html", log=log, extension=EXTENSION, results=None,
                            nav_active="district")
 
@@ -122,7 +124,7 @@ def _import_uploads(files) -> list:
                             "message": f"{name} is larger than {MAX_BUNDLE_BYTES // (1024 * 1024)} MB; "
                                        f"export smaller bundles with --since"})
             continue
-        results.append(import_bundle(get_store(), _data_dir(), data, name=name, now=utcnow()).to_dict())
+        results.append(import_bundle(get_store(), get_data_dir(), data, name=name, now=utcnow()).to_dict())
     return results
 
 
@@ -135,7 +137,7 @@ def import_post():
     if not files or all(not f.filename for f in files):
         abort(400, "choose one or more bundle files (.rhlb) to import")
     results = _import_uploads(files)
-    log = list(reversed(import_log(_data_dir())))[:50]
+    log = list(reversed(import_log(get_data_dir())))[:50]
     return render_template("district/import.html", log=log, extension=EXTENSION, results=results,
                            nav_active="district")
 
@@ -155,7 +157,7 @@ def import_one():
 @bp.route("/export", methods=["GET"])
 @role_required(*EXPORT_ROLES)
 def export_page():
-    state = export_state(_data_dir())
+    state = export_state(get_data_dir())
     return render_template("district/export.html", state=state, exports=list(reversed(state.get("exports", [])))[:20],
                            nav_active="district")
 
@@ -165,7 +167,7 @@ def export_page():
 def export_post():
     """Everything new or changed since the last export, as a signed bundle to download."""
     s = get_settings()
-    res = export_bundle(get_store(), _data_dir(), facility=s.facility_id, since="LAST", now=utcnow())
+    res = export_bundle(get_store(), get_data_dir(), facility=s.facility_id, since="LAST", now=utcnow())
     resp = Response(res.path.read_bytes(), mimetype="application/octet-stream")
     resp.headers["Content-Disposition"] = f'attachment; filename="{res.path.name}"'
     resp.headers["X-Bundle-Records"] = str(res.count)

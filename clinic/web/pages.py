@@ -1,8 +1,8 @@
 """Today (the worklist), Find a woman, the service worker and manifest, error pages, nav."""
 from __future__ import annotations
 
-from flask import (Blueprint, abort, current_app, render_template, request, send_from_directory,
-                   url_for)
+from flask import (Blueprint, abort, current_app, redirect, render_template, request,
+                   send_from_directory, url_for)
 
 from clinic.web import worklist
 from clinic.web.db import get_settings, get_store
@@ -25,10 +25,13 @@ def nav_links():
     from clinic.web.auth import WRITE_ROLES, current_user
 
     user = current_user()
+    district_office = get_settings().facility_kind == "district"
     out = []
     for label, target, key in NAV:
         if key == "book" and (user is None or user.role not in WRITE_ROLES):
             continue
+        if district_office and key in ("today", "stock"):
+            continue  # the district office cares for no women and holds no anti-D: it starts on its report
         out.append((label, url_for(target), key))
     return out
 
@@ -40,11 +43,17 @@ def _inject():
 
 @bp.route("/")
 def today():
+    if get_settings().facility_kind == "district" and not request.args:
+        # The district office holds no women of its own: it starts on its report.
+        return redirect(url_for("district.index"))
     flt = request.args.get("filter", "all")
     if flt not in worklist.FILTERS:
         abort(400, f"filter {flt!r} is not one of: {', '.join(worklist.FILTERS)}")
+    from clinic.web.auth import WRITE_ROLES
+
     wl = worklist.build(flt)
-    return render_template("today.html", wl=wl, filters=worklist.FILTERS, nav_active="today")
+    return render_template("today.html", wl=wl, filters=worklist.FILTERS, nav_active="today",
+                           write_roles=WRITE_ROLES)
 
 
 @bp.route("/find")

@@ -15,7 +15,7 @@ from clinic.records.schema import ENTRY_KINDS, KINDS
 from clinic.records.validate import ValidationError
 from clinic.web import charts, stock as stockmod
 from clinic.web.auth import WRITE_ROLES, current_user, role_required
-from clinic.web.db import get_settings, get_store, plan_for, utcnow
+from clinic.web.db import get_profile, get_settings, get_store, plan_for, utcnow
 from clinic.web.helpers import form_raw, local_input, today_local
 from clinic.web.saving import BOOKING_PARTS, Duplicates, create_record, redirect_for, save_booking
 
@@ -167,16 +167,16 @@ def pregnancy(pregnancy_id):
     store = get_store()
     woman, preg, entries = store.history(pregnancy_id)
     try:
-        plan, plan_error = plan_for(pregnancy_id), None
+        plan, plan_error = plan_for(pregnancy_id, (woman, preg, entries)), None
     except CareError as e:
         plan, plan_error = None, str(e)
-    all_entries = sorted(store.entries(pregnancy_id), key=time_of, reverse=True)
+    all_entries = sorted(entries, key=time_of, reverse=True)
     return render_template(
         "pregnancy.html", woman=woman, preg=preg, entries=all_entries, plan=plan, plan_error=plan_error,
         entry_kinds=[KINDS[k] for k in ENTRY_KINDS], time_of=time_of,
         titre_svg=charts.titre_chart(titre_points(all_entries, plan)),
-        mca_svg=charts.mca_chart(mca_points(all_entries, plan), _mca_median),
-        stock_links=_stock_links(all_entries))
+        mca_svg=charts.mca_chart(mca_points(all_entries, plan), _mca_median, charts.mom_lines(get_profile())),
+        stock_links=_stock_links(all_entries), write_roles=WRITE_ROLES)
 
 
 def ga_of(entry: dict, plan) -> int | None:

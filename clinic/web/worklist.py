@@ -5,7 +5,7 @@ from datetime import timedelta
 
 from clinic.care.errors import CareError
 from clinic.web.db import get_settings, get_store, plan_for, utcnow
-from clinic.web.helpers import as_dt
+from clinic.web.helpers import as_dt, field_of as _get
 
 SOON = timedelta(days=14)
 FILTERS = {
@@ -19,10 +19,6 @@ FILTERS = {
 # Pregnancies whose plans can still hold something to do here.
 ACTIVE_STATUS = ("ongoing", "delivered", "ended-early")
 OPEN_STATES = ("due", "overdue", "not-yet-due")
-
-
-def _get(obj, key, default=None):
-    return obj.get(key, default) if isinstance(obj, dict) else getattr(obj, key, default)
 
 
 def _matches(item, flt: str, now) -> bool:
@@ -59,9 +55,10 @@ def build(flt: str = "all") -> dict:
     for preg in store.pregnancies():
         if preg.get("status") not in ACTIVE_STATUS or preg.get("voided") or not cared_for_here(preg, s.facility_id):
             continue
-        woman = store.get(preg["woman_id"]) or {}
+        history = store.history(preg["id"])
+        woman = history[0]
         try:
-            plan = plan_for(preg["id"])
+            plan = plan_for(preg["id"], history)
         except CareError as e:
             # Said out loud, not skipped: this pregnancy's items cannot be shown until it is fixed.
             alerts.append({"alert": {"code": "plan-failed", "severity": "danger", "source": "rhledger",
@@ -87,8 +84,12 @@ def build(flt: str = "all") -> dict:
 
     def urgency(r):
         it = r["item"]
-        rank = {"overdue": 0, "due": 1}.get(_get(it, "state"), 2)
-        return (rank, as_dt(_get(it, "closes")) or as_dt(_get(it, "due")) or far)
+        state = _get(it, "state")
+        rank = {"overdue": 0, "due": 1}.get(state, 2)
+        # Overdue: the one whose late window ends soonest comes first (its deadline has passed, so
+        # the time still left to act is what makes it urgent); otherwise the nearest deadline.
+        late = as_dt(_get(it, "late_until")) if state == "overdue" else None
+        return (rank, late or as_dt(_get(it, "closes")) or as_dt(_get(it, "due")) or far)
 
     rows.sort(key=urgency)
     sev = {"danger": 0, "warning": 1}

@@ -151,3 +151,13 @@ def test_clinic_export_button_downloads_a_signed_bundle(clinics):
     assert b.facility == ds.A and int(r.headers["X-Bundle-Records"]) == len(b.records) > 0
     again = mw.post("/district/export", data={"csrf_token": mw.token})
     assert again.headers["X-Bundle-Records"] == "0"   # nothing changed since
+
+
+def test_the_district_office_starts_on_its_report_and_links_only_what_a_role_may_open(district_app):
+    officer = Signed(district_app, "officer")
+    r = officer.get("/")
+    assert r.status_code == 302 and r.headers["Location"].endswith("/district/")
+    html = officer.get("/district/?month=2026-11").get_data(as_text=True)
+    assert 'href="/district/import"' in html and ">Today<" not in html
+    lab = Signed(district_app, "lab")
+    assert 'href="/district/import"' not in lab.get("/district/?month=2026-11").get_data(as_text=True)

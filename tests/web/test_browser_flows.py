@@ -370,3 +370,13 @@ def test_the_app_is_installable(page, context, live):
     errors = cdp.send("Page.getInstallabilityErrors")["installabilityErrors"]
     # A Playwright context is an incognito profile, where nothing can be installed; all else must pass.
     assert [e for e in errors if e["errorId"] != "in-incognito"] == [], errors
+
+
+def test_main_nav_and_stock_fit_a_phone(page, live):
+    """At 360 px every main-nav section is on screen (the nav wraps), and no page is wider than the phone."""
+    sign_in(page, live)
+    for path in ("/", "/stock", "/calc/fmh?fetal_cell_percent=0.2"):
+        page.goto(path)
+        assert page.evaluate("document.documentElement.scrollWidth") <= 360, path
+        boxes = page.eval_on_selector_all(".mainnav a", "els => els.map(e => e.getBoundingClientRect().right)")
+        assert boxes and max(boxes) <= 360, (path, boxes)

@@ -18,7 +18,8 @@ def test_stock_page_shows_on_hand_by_lot(client, store):
     _move(store, "cold-chain-break", 2, hours=7)
     _move(store, "received", 3, lot="LOT-OLD", expiry="2020-01-01", hours=6)
     html = client.get("/stock").get_data(as_text=True)
-    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td>Anti-D 1500 \(1500 IU\)</td><td>LOT-A</td>.*?</tr>", html).group(0)
+    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td><strong>LOT-A</strong><br><small>Anti-D 1500 \(1500 IU\)</small></td>.*?</tr>",
+                    html).group(0)
     assert "<td>7</td><td>10500</td>" in row
     assert re.search(r'(?s)<tr class="expired">.*?LOT-OLD.*?expired', html)
 
