@@ -14,6 +14,8 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from clinic.records.schema import IU_PER_UG
+
 DEFAULT_DATA_DIR = "instance"
 CONFIG_FILE = "config.toml"
 FACILITY_KINDS = ("clinic", "hospital", "district")
@@ -41,7 +43,7 @@ class Product:
 
     @property
     def vial_ug(self) -> float:
-        return self.vial_iu / 5
+        return self.vial_iu / IU_PER_UG
 
 
 @dataclass(frozen=True)

@@ -25,6 +25,9 @@ from pathlib import Path
 from typing import Any, Mapping
 from zoneinfo import ZoneInfo
 
+from clinic.care.calc import ug_to_iu
+from clinic.care.ga import parse_ga
+from clinic.records.validate import utc_text
 from seed_demo.sites import (DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site,
                              site as site_def)
 from seed_demo.stories import STORIES, Story, When, stories_at
@@ -67,10 +70,6 @@ def _aware_now(now: datetime | None) -> datetime:
     if now.tzinfo is None:
         raise ValueError("now must be timezone-aware (e.g. datetime.now(timezone.utc))")
     return now.astimezone(timezone.utc).replace(microsecond=0)
-
-
-def utc_text(dt: datetime) -> str:
-    return dt.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 class Clock:
@@ -117,7 +116,7 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
     labels: dict[str, datetime] = {}
     ids: dict[str, str] = {}
     ga_text, anchor = story.dating
-    anchor_ga = _ga(ga_text)
+    anchor_ga = parse_ga(ga_text)
 
     def resolve(when: When) -> datetime:
         if when.base == "ago":
@@ -147,7 +146,7 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
             labels[step.label] = t
             ids[step.label] = record_id(story.key, i)
 
-    booked_at = clock.local(lmp + timedelta(days=_ga(story.booked)), 9)
+    booked_at = clock.local(lmp + timedelta(days=parse_ga(story.booked)), 9)
     if times:
         booked_at = min(booked_at, min(times) - timedelta(minutes=30))
     if booked_at > clock.now:
@@ -178,11 +177,6 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
         out.append(Planned(where, story, "create", step.kind, record_id(story.key, i), fields, t, step.by,
                            woman_id=wid, pregnancy_id=pid))
     return out
-
-
-def _ga(text: str) -> int:
-    w, _, d = text.partition("+")
-    return int(w) * 7 + int(d or 0)
 
 
 def _status_reason(status: str | None) -> str:
@@ -305,7 +299,7 @@ def _check_balances(s: Site, moves: list[Planned]) -> None:
 
 def _dose_iu(fields: dict) -> float:
     amount = float(fields["amount"])
-    return amount * 5 if fields["unit"] == "ug" else amount
+    return ug_to_iu(amount) if fields["unit"] == "ug" else amount
 
 
 # ---- config.toml --------------------------------------------------------------------------

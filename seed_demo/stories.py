@@ -25,6 +25,8 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
+from clinic.care.ga import parse_ga
+
 SITE_HOME = None  # a step with site=None happened at the story's home facility
 
 
@@ -42,16 +44,9 @@ class When:
     ref: str | None = None  # step label, for "after"
 
 
-def _ga_days(text: str | int) -> int:
-    if isinstance(text, int):
-        return text
-    w, _, d = text.partition("+")
-    return int(w) * 7 + int(d or 0)
-
-
 def ga(text: str | int, hour: int = 10, minute: int = 0) -> When:
     """At this gestational age (weeks+days) on her dating, local clock time."""
-    return When("ga", days=_ga_days(text), hour=hour, minute=minute)
+    return When("ga", days=parse_ga(text), hour=hour, minute=minute)
 
 
 def ago(days: float = 0, hours: float = 0) -> When:
@@ -238,7 +233,7 @@ ENDED = "ended"
 
 
 def _positive(key, name, home, ga_now, village, abo="A", age=27, g=2, p=1):
-    booked = min(_ga_days("11+2"), _ga_days(ga_now) - 2)  # booked at least two days ago
+    booked = min(parse_ga("11+2"), parse_ga(ga_now) - 2)  # booked at least two days ago
     booked_text = f"{booked // 7}+{booked % 7}"
     return Story(key, name, home, NOT_NEEDED, f"RhD-positive booking, now {ga_now}: no anti-D needed",
                  (ga_now, ago()), tuple(_pos_booking(booked_text, abo=abo)),

@@ -28,6 +28,8 @@ from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from typing import Callable, Iterator
 
+from clinic.records.validate import utc_text
+
 SYNTH_NAMESPACE = uuid.UUID("0d6c7e52-9a1b-4f3e-8b7d-2c5e9f1a4b63")
 TIMEZONE = "Africa/Nairobi"
 DISTRICT_ID = "synth-district"
@@ -65,10 +67,6 @@ def _name(rng: random.Random) -> str:
     return f"{word(rng.randint(2, 3))} {word(rng.randint(2, 4))}"
 
 
-def _utc(dt: datetime) -> str:
-    return dt.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
-
-
 def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, booked_at: datetime,
                     rhd_negative_share: float = 0.3) -> list[Call]:
     """The store calls of one synthetic pregnancy booked at ``booked_at``, up to ``now``."""
@@ -95,16 +93,16 @@ def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, 
         Call("typing", {"abo": rng.choice(("A", "B", "AB", "O", "O")), "rhd": "negative" if negative else "positive",
                         "method": "column-agglutination", "tested_on": booked_at.date().isoformat()},
              fac, rid("typing"), booked_at, wid, pid),
-        Call("screen", {"sampled_at": _utc(booked_at), "result": "negative"}, fac, rid("screen-booking"),
+        Call("screen", {"sampled_at": utc_text(booked_at), "result": "negative"}, fac, rid("screen-booking"),
              booked_at + timedelta(minutes=3), wid, pid),
     ]
     lot = {"lot": f"SYN-{fac[-3:]}-{booked_at.year % 100:02d}", "lot_expiry": (booked_at + timedelta(days=500)).date().isoformat()}
     if negative:
         t28 = at_ga(28 * 7 + rng.randint(0, 10))
-        calls.append(Call("screen", {"sampled_at": _utc(t28), "result": "negative", "ga_days": (t28.date() - lmp).days},
+        calls.append(Call("screen", {"sampled_at": utc_text(t28), "result": "negative", "ga_days": (t28.date() - lmp).days},
                           fac, rid("screen-28"), t28, wid, pid))
         if rng.random() < 0.9:
-            calls.append(Call("dose", {"given_at": _utc(t28 + timedelta(minutes=30)), "amount": 1500, "unit": "IU",
+            calls.append(Call("dose", {"given_at": utc_text(t28 + timedelta(minutes=30)), "amount": 1500, "unit": "IU",
                                        "route": "IM", "product": PRODUCT, "indication": "routine-antenatal",
                                        "given_by": "Synthetic midwife", **lot},
                               fac, rid("dose-routine"), t28 + timedelta(minutes=30), wid, pid))
@@ -114,16 +112,16 @@ def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, 
             ev_id = rid("event")
             calls.append(Call("event", {"event_kind": rng.choice(("antepartum-haemorrhage", "abdominal-trauma",
                                                                   "external-cephalic-version", "amniocentesis")),
-                                        "occurred_at": _utc(tev), "ga_days": ev_ga}, fac, ev_id, tev, wid, pid))
+                                        "occurred_at": utc_text(tev), "ga_days": ev_ga}, fac, ev_id, tev, wid, pid))
             tdose = tev + timedelta(hours=rng.randint(2, 60))
-            calls.append(Call("dose", {"given_at": _utc(tdose), "amount": 500, "unit": "IU", "route": "IM",
+            calls.append(Call("dose", {"given_at": utc_text(tdose), "amount": 500, "unit": "IU", "route": "IM",
                                        "product": SMALL_PRODUCT, "indication": "sensitising-event",
                                        "given_by": "Synthetic midwife", "covers_id": ev_id, **lot},
                               fac, rid("dose-event"), tdose, wid, pid))
     if born < now - timedelta(hours=2):
         baby = rng.choice(("positive", "positive", "negative")) if negative else rng.choice(("positive", "negative"))
         bid = rid("birth")
-        calls.append(Call("birth", {"born_at": _utc(born), "ga_days": birth_ga, "outcome": "live-birth",
+        calls.append(Call("birth", {"born_at": utc_text(born), "ga_days": birth_ga, "outcome": "live-birth",
                                     "baby_rhd": baby, "dat": "negative", "cord_sampled": True},
                           fac, bid, born, wid, pid))
         if negative and baby == "positive":
@@ -135,7 +133,7 @@ def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, 
             else:
                 tpp = None  # missed
             if tpp is not None:
-                calls.append(Call("dose", {"given_at": _utc(tpp), "amount": 500, "unit": "IU", "route": "IM",
+                calls.append(Call("dose", {"given_at": utc_text(tpp), "amount": 500, "unit": "IU", "route": "IM",
                                            "product": SMALL_PRODUCT, "indication": "postpartum",
                                            "given_by": "Synthetic midwife", "covers_id": bid, **lot},
                                   fac, rid("dose-postpartum"), tpp, wid, pid))
@@ -215,7 +213,7 @@ def stored_records(calls: list[Call]) -> list[dict]:
 
     out: dict[str, dict] = {}
     for c in calls:
-        at = _utc(c.at + timedelta(minutes=5))
+        at = utc_text(c.at + timedelta(minutes=5))
         if c.kind == "status":
             rec = out[c.record_id]
             changes = {k: {"old": rec.get(k), "new": v} for k, v in c.fields.items() if rec.get(k) != v}
@@ -291,7 +289,7 @@ def build_synthetic(data_dir, facilities: int = 5, pregnancies: int = 200, seed:
     elapsed = time.perf_counter() - t0
     return {"data_dir": str(data_dir), "facilities": facilities, "pregnancies": total, "records": creates,
             "amendments": amends, "via": via, "seconds": round(elapsed, 2),
-            "ms_per_record": round(1000 * elapsed / max(1, creates), 3), "seed": seed, "now": _utc(now)}
+            "ms_per_record": round(1000 * elapsed / max(1, creates), 3), "seed": seed, "now": utc_text(now)}
 
 
 def main(argv: list[str] | None = None) -> int:

@@ -9,10 +9,11 @@ from __future__ import annotations
 from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
+from clinic.care import CAUTION
+from clinic.care.calc import iu_to_ug, ug_to_iu
+from clinic.care.dating import ga_on
 from clinic.care.ga import format_ga
-
-CAUTION = ("Decision support only: confirm every dose against the product label and local protocol, "
-           "and defer to licensed clinicians and local regulations.")
+from clinic.records.validate import parse_utc
 SENSITISED_LINE = "Antibody present \u2013 refer"
 RHD_WORDS = {"positive": "RhD positive", "negative": "RhD negative", "weak-d": "weak D",
              "partial-d": "partial D", "inconclusive": "RhD inconclusive", "unknown": "RhD not known"}
@@ -26,10 +27,6 @@ OPEN_STATES = ("overdue", "due", "not-yet-due")
 STATE_WORDS = {"overdue": "OVERDUE", "due": "due now", "not-yet-due": "due"}
 
 
-def _parse(text: str) -> datetime:
-    return datetime.fromisoformat(text.replace("Z", "+00:00"))
-
-
 def show_date(v: str | None) -> str:
     """'2026-11-20' or a UTC time -> '20 Nov 2026' (month in letters: no day/month mix-up)."""
     if not v:
@@ -41,7 +38,7 @@ def show_date(v: str | None) -> str:
 def show_time(v: str | None, tz: tzinfo) -> str:
     if not v:
         return ""
-    t = _parse(v).astimezone(tz)
+    t = parse_utc(v).astimezone(tz)
     return t.strftime("%d %b %Y %H:%M").lstrip("0")
 
 
@@ -50,13 +47,13 @@ def local_date(v: str | None, tz: tzinfo) -> str:
         return ""
     if len(v) == 10:
         return v
-    return _parse(v).astimezone(tz).date().isoformat()
+    return parse_utc(v).astimezone(tz).date().isoformat()
 
 
 def ga_at(day_iso: str, edd: str | None) -> int | None:
     if not edd or not day_iso:
         return None
-    return 280 - (date.fromisoformat(edd) - date.fromisoformat(day_iso[:10])).days
+    return ga_on(day_iso[:10], edd=edd)
 
 
 def _ga_text(rec: dict, day: str, edd: str | None) -> str:
@@ -69,8 +66,7 @@ def _ga_text(rec: dict, day: str, edd: str | None) -> str:
 
 
 def ug_text(iu: float) -> str:
-    ug = iu / 5
-    return f"{ug:g}"
+    return f"{iu_to_ug(iu):g}"
 
 
 def is_sensitised(entries: list[dict]) -> bool:
@@ -127,7 +123,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
               for e in sorted((x for x in live if x["kind"] == "event"), key=lambda r: r["occurred_at"])]
     doses = []
     for d in sorted((x for x in live if x["kind"] == "dose"), key=lambda r: r["given_at"]):
-        iu = d.get("dose_iu") or (d["amount"] * 5 if d["unit"] == "ug" else d["amount"])
+        iu = d.get("dose_iu") or (ug_to_iu(d["amount"]) if d["unit"] == "ug" else d["amount"])
         doses.append({"date": show_time(d["given_at"], tz), "ga": _ga_text(d, local_date(d["given_at"], tz), edd),
                       "ug": ug_text(iu), "iu": f"{int(round(iu))}", "route": d["route"], "lot": d["lot"],
                       "why": INDICATION_WORDS.get(d["indication"], d["indication"]), "product": d.get("product", "")})

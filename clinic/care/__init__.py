@@ -19,7 +19,7 @@ _EXPORTS = {
              "iut_volume", "mca_psv_median", "mca_psv_mom", "mca_result", "mca_severity", "nadler_blood_volume_ml",
              "ug_to_iu", "vials_for"),
     "dating": ("Dating", "choose_dating", "edd_from_lmp", "edd_naegele_calendar", "ga_days_from_crl", "ga_from_crl",
-               "ga_on", "ga_text", "redate_threshold_days"),
+               "ga_on", "redate_threshold_days"),
     "errors": ("CareError", "CareInputError", "ProfileError"),
     "ga": ("GAFormatError", "format_ga", "parse_ga"),
     "model": ("Alert", "CareContext", "Plan", "PlanItem"),

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from datetime import date, datetime, timedelta, timezone, tzinfo
 
 from clinic.care.errors import CareInputError, require_range
-from clinic.care.ga import format_ga
+from clinic.care.ga import format_ga, parse_ga
 
 # Naegele's rule as ACOG Committee Opinion 700 (2017) applies it: EDD = LMP + 280 days.
 PREGNANCY_DAYS = 280
@@ -77,10 +77,6 @@ def ga_on(on, *, lmp=None, edd=None, tz: tzinfo | None = None) -> int:
     return (local_date(on, tz) - origin).days
 
 
-def ga_text(days: int) -> str:
-    return format_ga(days)
-
-
 def ga_from_crl(crl_mm) -> float:
     """GA in days (unrounded) from crown-rump length, Robinson & Fleming 1975."""
     crl = require_range("crl_mm", crl_mm, CRL_MIN_MM, CRL_MAX_MM, unit="mm")
@@ -90,6 +86,11 @@ def ga_from_crl(crl_mm) -> float:
 def ga_days_from_crl(crl_mm) -> int:
     """GA from CRL rounded to the nearest whole day."""
     return int(math.floor(ga_from_crl(crl_mm) + 0.5))
+
+
+def profile_thresholds(profile) -> list[tuple[int, int]]:
+    """The profile's ``dating.redate_thresholds`` as the (below_ga_days, days) pairs of ``choose_dating``."""
+    return [(parse_ga(t["below_ga"]), int(t["days"])) for t in profile.get("dating.redate_thresholds")]
 
 
 def redate_threshold_days(scan_ga_days: int, thresholds) -> int:

@@ -6,6 +6,7 @@ from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
 from clinic.config import Product
+from clinic.records.schema import IU_PER_UG
 from clinic.records.validate import utc_text
 
 STATES = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
@@ -58,7 +59,7 @@ class PlanItem:
 
     @property
     def dose_ug(self) -> float | None:
-        return None if self.dose_iu is None else self.dose_iu / 5
+        return None if self.dose_iu is None else self.dose_iu / IU_PER_UG
 
     def to_dict(self) -> dict[str, Any]:
         return {

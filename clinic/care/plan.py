@@ -10,9 +10,9 @@ from dataclasses import dataclass
 from datetime import date, datetime, time, timedelta, timezone
 
 from clinic.care import calc
-from clinic.care.dating import Dating, choose_dating
+from clinic.care.dating import Dating, choose_dating, profile_thresholds
 from clinic.care.errors import CareInputError
-from clinic.care.ga import format_ga, parse_ga
+from clinic.care.ga import format_ga
 from clinic.care.model import Alert, CareContext, Plan, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
@@ -250,7 +250,8 @@ def _read_doses(h: _History, tz, alerts: list[Alert], profile: Profile) -> list[
     for d in h.of("dose"):
         row = dict(d)
         row["_t"] = parse_utc(d["given_at"])
-        row["_iu"] = int(d.get("dose_iu") or round(d["amount"] * (5 if d.get("unit") == "ug" else 1)))
+        row["_iu"] = int(d.get("dose_iu")
+                         or round(calc.ug_to_iu(d["amount"]) if d.get("unit") == "ug" else d["amount"]))
         dup = next((c for c in counted if abs(c["_t"] - row["_t"]) <= DUPLICATE_WITHIN and c["_iu"] == row["_iu"]
                     and (c.get("lot") or "") == (row.get("lot") or "")), None)
         if dup is not None:
@@ -314,7 +315,7 @@ class _Planner:
             self.dating = choose_dating(
                 lmp=pr.get("lmp"), scan_on=pr.get("scan_on"), scan_crl_mm=pr.get("scan_crl_mm"),
                 scan_ga_days=pr.get("scan_ga_days"), agreed_edd=pr.get("edd"), rule=p.get("dating.rule"),
-                thresholds=[(parse_ga(t["below_ga"]), t["days"]) for t in p.get("dating.redate_thresholds")],
+                thresholds=profile_thresholds(p),
                 source=p.section_source("dating"))
         except CareInputError as e:
             raise CareInputError(f"pregnancy.{e.field}", e.errors[e.field]) from None
@@ -431,9 +432,6 @@ class _Planner:
                            f"or routine dose: link it with 'covers'", self.p.section_source("events"), [d["id"]])
             else:
                 self.assigned.setdefault(key, []).append(d)
-
-    def _sensitised_before(self, t: datetime | None = None) -> bool:
-        return self.ab.immune_at is not None and (t is None or self.ab.immune_at <= t)
 
     def _stop_reason(self) -> str | None:
         """Why prophylaxis items that are not done are not needed, or None."""
@@ -592,7 +590,7 @@ class _Planner:
                           state="due", due=opens, opens=opens, closes=closes, late_until=late, dose_iu=r.dose_iu,
                           reason="", source=src)
             given = self.assigned.get(f"routine:{r.number}")
-            window = (f"{r.dose_iu} IU ({r.dose_iu / 5:g} µg) from {format_ga(r.opens_ga_days)}, on time until "
+            window = (f"{r.dose_iu} IU ({calc.iu_to_ug(r.dose_iu):g} µg) from {format_ga(r.opens_ga_days)}, on time until "
                       f"{format_ga(r.closes_ga_days)}, late dose still worth giving until {format_ga(r.late_until_ga_days)}")
             if given:
                 self._done(it, given[0], closes)
@@ -798,7 +796,7 @@ class _Planner:
                 else:
                     it.reason = ("at birth: cord blood for the baby's RhD group and DAT" if code == "cord-typing" else
                                  f"if the baby is RhD positive or not known: {pp['dose_iu']} IU "
-                                 f"({pp['dose_iu'] / 5:g} µg) within {pp['deadline_hours']:g} hours of birth")
+                                 f"({calc.iu_to_ug(pp['dose_iu']):g} µg) within {pp['deadline_hours']:g} hours of birth")
             return
         b, born = self.birth, self.born_at
         closes = born + timedelta(hours=pp["deadline_hours"])
@@ -849,7 +847,7 @@ class _Planner:
                     ", stillbirth" if any(x.get("outcome") == "stillbirth" for x in self.births) else "") + ")"
             it.state = _state(self.now, born, closes, late)
             it.reason = {
-                "due": f"{why}: give {pp['dose_iu']} IU ({pp['dose_iu'] / 5:g} µg) by {_fmt(closes, tz)}",
+                "due": f"{why}: give {pp['dose_iu']} IU ({calc.iu_to_ug(pp['dose_iu']):g} µg) by {_fmt(closes, tz)}",
                 "overdue": f"{why}: the {pp['deadline_hours']:g}-hour deadline passed at {_fmt(closes, tz)}; give it "
                            f"now — a late dose may still protect (until {_fmt(late, tz)})",
                 "missed": f"{why}: no dose within {pp['deadline_hours']:g} hours or the late window "

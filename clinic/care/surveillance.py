@@ -12,6 +12,9 @@ from datetime import date, timedelta
 from clinic.care import calc
 from clinic.records.validate import parse_utc
 
+# Alert severity for the fetal anaemia class of an MCA-PSV or fetal Hb result.
+ANAEMIA_ALERT_SEVERITY = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}
+
 
 def antibody_risk(name: str, titre, iu_ml, profile) -> dict:
     """Is this antibody level critical (refer)? By quantitation where the profile uses it, else titre."""
@@ -148,7 +151,7 @@ def surveillance_items(pl) -> None:
         ga = pl.ga_of(d, t)
         if calc.MCA_GA_MIN_DAYS <= ga <= calc.MCA_GA_MAX_DAYS:
             r = calc.mca_result(d["mca_psv_cm_s"], ga, p)
-            sev = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}[r["severity"]]
+            sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
             pl.alert("mca-psv", sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom']:.2f} MoM "
                                      f"(median {r['median_cm_s']:.1f}; {r['severity']}): {r['suggestion']}",
                      r["source"], [d["id"]])
@@ -162,7 +165,7 @@ def surveillance_items(pl) -> None:
         ga = pl.ga_of(f, t)
         if calc.HB_GA_MIN_DAYS <= ga <= calc.HB_GA_MAX_DAYS:
             r = calc.fetal_hb_result(f["hb_g_dl"], ga, p)
-            sev = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}[r["severity"]]
+            sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
             pl.alert("fetal-hb", sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom']:.2f} MoM "
                                       f"({r['severity']} anaemia by Mari 2000 classes): for the fetal medicine team",
                      r["source"], [f["id"]])

@@ -12,7 +12,8 @@ import click
 
 from clinic.cli.common import clean_errors, data_option, emit_json, resolve_data
 from clinic.care import calc
-from clinic.care.dating import edd_from_lmp, edd_naegele_calendar, ga_days_from_crl, ga_from_crl, ga_on
+from clinic.care.dating import (RF_INTERCEPT, RF_SLOPE, edd_from_lmp, edd_naegele_calendar, ga_days_from_crl, ga_from_crl,
+                                 ga_on)
 from clinic.care.errors import CareError, CareInputError
 from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.care.protocol import list_profiles, load_profile
@@ -139,7 +140,8 @@ def crl_cmd(crl_mm, as_json):
     raw = ga_from_crl(crl_mm)
     days = ga_days_from_crl(crl_mm)
     obj = {"crl_mm": crl_mm, "ga_days": days, "ga": format_ga(days), "ga_days_exact": round(raw, 2),
-           "source": "Robinson HP, Fleming JEE, Br J Obstet Gynaecol 1975;82:702-710: GA(days) = 8.052 sqrt(CRL) + 23.73"}
+           "source": "Robinson HP, Fleming JEE, Br J Obstet Gynaecol 1975;82:702-710: "
+                     f"GA(days) = {RF_SLOPE} sqrt(CRL) + {RF_INTERCEPT}"}
     _out(as_json, obj, [f"CRL {crl_mm:g} mm -> GA {format_ga(days)} ({raw:.1f} days), Robinson & Fleming 1975"])
 
 
@@ -155,10 +157,12 @@ def mom_cmd(psv, ga, profile_id, data, as_json):
     prof = _profile(profile_id, data)
     r = calc.mca_result(psv, _ga(ga), prof)
     r["profile"] = prof.id
+    s = prof.get("surveillance")
     _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_cm_s']:.1f} cm/s) "
                       f"— {r['severity']}",
-                      f"  thresholds: 1.29 MoM {r['threshold_mild_cm_s']:.1f}, 1.50 MoM {r['threshold_moderate_cm_s']:.1f},"
-                      f" 1.55 MoM {r['threshold_severe_cm_s']:.1f} cm/s",
+                      f"  thresholds: {s['mca_mom_mild']:.2f} MoM {r['threshold_mild_cm_s']:.1f}, "
+                      f"{s['mca_mom_moderate']:.2f} MoM {r['threshold_moderate_cm_s']:.1f}, "
+                      f"{s['mca_mom_severe']:.2f} MoM {r['threshold_severe_cm_s']:.1f} cm/s",
                       f"  {r['suggestion']}", f"  source: {r['source']}"])
 
 

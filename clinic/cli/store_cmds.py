@@ -11,17 +11,12 @@ import click
 from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
 from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
 from clinic.records.validate import ValidationError
+from clinic.signing.errors import SigningError
 from clinic.store import Store, StoreError
 from clinic.store.backup import sha256_file
 from clinic.store.storage import atomic_write_bytes, ensure_dir
 
-try:  # the signing package's errors are library errors too
-    from clinic.signing.errors import SigningError as _SigningError
-except ImportError:  # pragma: no cover - while the signing package is being written
-    class _SigningError(Exception):
-        pass
-
-LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, _SigningError, OSError)
+LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, OSError)
 
 
 def _toml_str(s: str) -> str:

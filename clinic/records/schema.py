@@ -17,7 +17,6 @@ Transfusion Medicine 24:8-20, section 2).
 from __future__ import annotations
 
 from dataclasses import dataclass, field
-from typing import Any
 
 SCHEMA_VERSION = 1
 

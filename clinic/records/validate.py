@@ -10,7 +10,7 @@ from datetime import date, datetime, timedelta, timezone, tzinfo
 from typing import Any, Mapping
 
 from clinic.care.ga import GAFormatError, format_ga, parse_ga
-from clinic.records.schema import IU_PER_UG, KINDS, Field, Kind
+from clinic.records.schema import IU_PER_UG, KINDS, Field
 
 # A phone's clock may run a little ahead of the laptop's.
 CLOCK_SKEW = timedelta(minutes=10)
@@ -304,8 +304,7 @@ def _dose_canonical(r, errors):
         errors["amount"] = "must be at least 1 IU (0.2 µg)"
         return
     r["dose_iu"] = int(round(iu))
-    if "given_at" in r and "lot_expiry" in r:
-        pass  # an expired lot is an alert from the care engine, not a refusal: the dose was given
+    # An expired lot is not refused here (the dose was given): the care engine alerts on it.
 
 
 def _hb_or_hct(r, errors):

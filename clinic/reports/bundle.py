@@ -35,6 +35,7 @@ import cbor2
 
 from clinic.records.schema import KINDS, SCHEMA_VERSION
 from clinic.records.validate import ValidationError, parse_utc, utc_text, validate_record
+from clinic.store.errors import Conflict, StoreError
 
 MAGIC = b"RHLB"
 FORMAT_ID = "rhledger-bundle"
@@ -241,11 +242,7 @@ def check_records(records: list, *, name: str, until: str | None, now: datetime,
         ids.add(rid)
         try:
             check(r, when)
-        except Exception as e:  # noqa: BLE001 - ValidationError, Conflict: named in the message
-            from clinic.store.errors import StoreError
-
-            if not isinstance(e, (ValidationError, StoreError)):
-                raise
+        except (ValidationError, StoreError) as e:  # a Conflict is a StoreError
             problems.append(f"{where}: {e}")
         if len(problems) >= 5:
             break
@@ -274,8 +271,6 @@ def store_check(store):
         store.check_foreign(r, now)
         local = store.get(r["id"])
         if local is not None and local["kind"] != r["kind"]:
-            from clinic.store.errors import Conflict
-
             raise Conflict(f"{r['id']} is a {local['kind']} here but a {r['kind']} in the bundle")
     return check
 

@@ -44,10 +44,6 @@ class Planner:
     label: str
     source: str        # "bundle" (the facility's own settings) or "district" (this installation's)
 
-    @property
-    def uses_fetal_rhd(self) -> bool:
-        return bool(self.profile.get("routine.targeted_prophylaxis"))
-
 
 def _planner(care: dict, source: str, where: str) -> Planner:
     from zoneinfo import ZoneInfo
@@ -177,9 +173,7 @@ def load_inputs(store, settings, *, now: datetime, first_month: Month | None = N
         plans = [_plan_one(own, per, now, job) for job in jobs]
     cases = []
     for (woman, preg, ents), plan in zip(jobs, plans):
-        pl = per.get(preg.get("facility"), own)
-        cases.append(Case(woman, preg, [e for e in ents if not e.get("voided")], plan,
-                          uses_fetal_rhd=pl.uses_fetal_rhd))
+        cases.append(Case(woman, preg, [e for e in ents if not e.get("voided")], plan))
     cases.sort(key=lambda c: (c.facility, c.pregnancy.get("booked_on", ""), c.id))
     labels = {f: used.get(f, (per.get(f) or own).label) for f in facilities}
     return Inputs(cases, stock, sorted(facilities), dict(facility_names or {}), own.label, labels)

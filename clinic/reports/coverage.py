@@ -21,8 +21,10 @@ from dataclasses import dataclass, field
 from datetime import datetime, timedelta, timezone, tzinfo
 from typing import Any, Callable, Iterable
 
+from clinic.records.schema import IU_PER_UG
 from clinic.records.validate import parse_utc
 from clinic.reports.month import Month, percentage
+from clinic.reports.stock import EXPIRY_WARNING_DAYS
 
 DISTRICT = "*district*"
 CAUTION = ("These numbers are only as complete as the data entered: a typing, screen or dose "
@@ -32,7 +34,6 @@ ATTRIBUTION = ("Each pregnancy counts once, for the facility that created its pr
                "(where she booked), even when her records arrive in bundles from two clinics; "
                "follow-up lists also name the facility that saw her last.")
 TIME_ZONE_NOTE = "Months run from local midnight on the 1st to local midnight on the 1st of the next month."
-EXPIRY_WARNING_DAYS = 60
 
 # Item codes and categories of the care engine that the report reads (DEVELOPERS.md,
 # "Care engine"). Only these names couple the report to the engine.
@@ -630,7 +631,7 @@ class UsageRow:
 
     @property
     def ug(self) -> float:
-        return self.iu / 5
+        return self.iu / IU_PER_UG
 
 
 @dataclass

@@ -13,6 +13,8 @@ from datetime import date, datetime, timedelta
 from clinic.records.validate import parse_utc
 
 OUT_MOVES = ("given", "discarded", "cold-chain-break")
+# A lot on hand that expires within this many days is flagged (stock page and monthly report).
+EXPIRY_WARNING_DAYS = 60
 
 
 @dataclass
@@ -35,7 +37,7 @@ class LotBalance:
         return self.vials * self.vial_iu
 
 
-def balances(records, *, at: datetime, warn_days: int = 60, day: date | None = None) -> list[LotBalance]:
+def balances(records, *, at: datetime, warn_days: int = EXPIRY_WARNING_DAYS, day: date | None = None) -> list[LotBalance]:
     """Balance of every lot at each facility at instant ``at`` (movements before it).
 
     ``expires_soon``: on hand, and the lot expires within ``warn_days`` days of ``at``;

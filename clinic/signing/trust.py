@@ -221,11 +221,11 @@ def own_entry(data_dir: Path, name: str | None = None, kind: str | None = None,
 
 
 def _settings(data_dir: Path):
-    from clinic.config import ConfigError, load_settings
-    try:
-        return load_settings(Path(data_dir))
-    except ConfigError:
+    """The installation's settings; None only when there is no config.toml (a bad one raises)."""
+    from clinic.config import CONFIG_FILE, load_settings
+    if not (Path(data_dir) / CONFIG_FILE).exists():
         return None
+    return load_settings(Path(data_dir))
 
 
 def _key_cbor(k: TrustKey) -> dict:

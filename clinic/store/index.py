@@ -115,9 +115,6 @@ class IndexLog:
         t = self.locs.get(rid)
         return Loc(*t) if t is not None else None
 
-    def partition_of(self, rid: str) -> str:
-        return self.locs[rid][0]
-
     @staticmethod
     def line(rid: str, loc: Loc) -> str:
         return " ".join((rid, loc.partition, loc.kind, loc.woman_id or "-", loc.pregnancy_id or "-"))

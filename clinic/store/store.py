@@ -34,7 +34,6 @@ import filelock
 from tinydb import TinyDB
 
 from clinic.config import ConfigError, Settings, load_settings
-from clinic.records import schema
 from clinic.records.schema import ENVELOPE_FIELDS, KINDS
 from clinic.records.validate import ValidationError, parse_utc, utc_text, validate_record
 from clinic.store import backup as backups

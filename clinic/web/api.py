@@ -169,7 +169,7 @@ def pregnancy(pregnancy_id):
 
     woman, preg, entries = store.history(pregnancy_id)
     try:
-        plan, plan_error = jsonable(plan_for(pregnancy_id)), None
+        plan, plan_error = jsonable(plan_for(pregnancy_id, (woman, preg, entries))), None
     except CareError as e:
         plan, plan_error = None, str(e)
     return jsonify(woman=woman, pregnancy=preg, entries=entries, plan=plan, plan_error=plan_error)

@@ -8,14 +8,13 @@ from __future__ import annotations
 
 from datetime import date
 
+from clinic.care import CAUTION  # noqa: F401 - the caution of the dose calculators (api.py)
 from clinic.care.errors import CareError, CareInputError
 from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import EVENT_KINDS
 from clinic.records.validate import ValidationError
 from clinic.web.db import get_profile, get_settings
 
-CAUTION = ("Decision support only: confirm the dose against the product label and local protocol; "
-           "defer to licensed clinicians and local regulations.")
 
 
 def _inp(name, label, type="number", *, required=True, min=None, max=None, step="any", choices=(),
@@ -63,6 +62,22 @@ def _choice(args, name, choices, default=None):
     return v
 
 
+_YES = ("yes", "on", "true", "1")
+_NO = ("no", "off", "false", "0")
+
+
+def _yes_no(args, name, default: bool) -> bool:
+    """A yes/no input (a checkbox sends "on"); empty: ``default``; anything else is refused."""
+    v = (args.get(name) or "").strip().lower()
+    if not v:
+        return default
+    if v in _YES:
+        return True
+    if v in _NO:
+        return False
+    raise CareInputError(name, f"{v!r} is not yes or no")
+
+
 def _date(args, name):
     v = (args.get(name) or "").strip()
     if not v:
@@ -93,7 +108,9 @@ def run_fmh(args):
     kw = {"fetal_cell_percent": pct} if pct is not None else {
         "fetal_cells": _num(args, "fetal_cells", required=True, integer=True),
         "cells_counted": _num(args, "cells_counted", required=True, integer=True)}
-    mbv = _num(args, "maternal_volume_ml", required=False) or s.maternal_blood_volume_ml
+    mbv = _num(args, "maternal_volume_ml", required=False)
+    if mbv is None:  # empty: the facility's figure (a 0 typed in is refused by the range check)
+        mbv = s.maternal_blood_volume_ml
     return fmh_result(profile=get_profile(), maternal_volume_ml=mbv,
                       route=_choice(args, "route", ("IM", "IV"), "IM"),
                       vial_sizes_iu=tuple(p.vial_iu for p in s.products), **kw)
@@ -103,20 +120,22 @@ def run_event_dose(args):
     from clinic.care.calc import event_dose
 
     kind = _choice(args, "kind", EVENT_KINDS)
-    ongoing = (args.get("ongoing") or "").lower() in ("yes", "on", "true", "1")
+    ongoing = _yes_no(args, "ongoing", False)
     return event_dose(kind, _ga(args), get_profile(), products=get_settings().products, ongoing=ongoing)
 
 
 def run_fetal_rhd(args):
     from clinic.care.calc import fetal_rhd_probability
 
-    freq = _num(args, "rhd_negative_frequency", required=False) or get_settings().rhd_negative_frequency
+    freq = _num(args, "rhd_negative_frequency", required=False)
+    if freq is None:
+        freq = get_settings().rhd_negative_frequency
     fetal = (args.get("fetal_rhd") or "").strip() or None
     return fetal_rhd_probability(
         rhd_negative_frequency=freq,
         partner_rhd=_choice(args, "partner_rhd", ("positive", "negative", "unknown"), "unknown"),
         partner_zygosity=_choice(args, "partner_zygosity", ("homozygous", "heterozygous", "unknown"), "unknown"),
-        paternity_certain=(args.get("paternity_certain") or "yes").lower() in ("yes", "on", "true", "1"),
+        paternity_certain=_yes_no(args, "paternity_certain", True),
         fetal_rhd=fetal)
 
 
@@ -159,18 +178,17 @@ def run_units(args):
 
 def run_dating(args):
     """EDD and GA today from LMP / dating scan / agreed EDD, by the profile's dating rule."""
-    from clinic.care.dating import choose_dating
+    from clinic.care.dating import choose_dating, profile_thresholds
     from clinic.web.helpers import now_local
 
     prof = get_profile()
-    thresholds = [(parse_ga(t["below_ga"]), int(t["days"])) for t in prof.get("dating.redate_thresholds")]
     crl = _num(args, "scan_crl_mm", required=False)
     sga = _ga(args, "scan_ga_days", required=False)
     scan_on = _date(args, "scan_on")
     if (crl is not None or sga is not None) and scan_on is None:
         raise CareInputError("scan_on", "is required with a scan measurement")
     d = choose_dating(lmp=_date(args, "lmp"), scan_on=scan_on, scan_crl_mm=crl, scan_ga_days=sga,
-                      agreed_edd=_date(args, "edd"), rule=prof.get("dating.rule"), thresholds=thresholds,
+                      agreed_edd=_date(args, "edd"), rule=prof.get("dating.rule"), thresholds=profile_thresholds(prof),
                       source=prof.section_source("dating"))
     on = _date(args, "booked_on") or now_local().date()
     today = now_local().date()

@@ -1,7 +1,7 @@
 """Charts drawn on the server as SVG (inline in the page, printable, no chart library).
 
 * ``titre_chart``: antibody titre over gestational age, log2 scale (doubling dilutions).
-* ``mca_chart``: MCA-PSV over gestational age with the 1.0, 1.29 and 1.5 MoM curves. The
+* ``mca_chart``: MCA-PSV over gestational age with the median and the profile's MoM curves. The
   median comes from the care engine (``median_fn``); the formula is never repeated here.
 """
 from __future__ import annotations
@@ -19,7 +19,13 @@ LEFT, RIGHT, TOP, BOTTOM = 50, 14, 14, 34
 INK, MUTED, GRID, BRAND = "#1b1f24", "#5b6470", "#e3e7ec", "#1d4e89"
 CURVE_STYLE = {"mom-median": 'stroke="#6c757d" stroke-dasharray="4 3"', "mom-mild": 'stroke="#8a5a00"',
                "mom-severe": 'stroke="#a4161a"'}
-MOM_LINES = ((1.0, "1.0 MoM", "mom-median"), (1.29, "1.29", "mom-mild"), (1.5, "1.5", "mom-severe"))
+
+
+def mom_lines(profile) -> tuple[tuple[float, str, str], ...]:
+    """The MCA chart's MoM curves: the median, and the profile's mild and referral thresholds."""
+    s = profile.get("surveillance")
+    mild, refer = s["mca_mom_mild"], s["mca_refer_mom"]
+    return ((1.0, "1.0 MoM", "mom-median"), (mild, f"{mild:g}", "mom-mild"), (refer, f"{refer:g}", "mom-severe"))
 
 
 def _x(ga_days: float, lo: float, hi: float) -> float:
@@ -88,9 +94,10 @@ def titre_chart(points: list[tuple[int, int, str]]) -> Markup | None:
 
 
 def mca_chart(points: list[tuple[int, float]], median_fn: Callable[[int], float],
-              valid: tuple[int, int] = (18 * 7, 40 * 7)) -> Markup | None:
-    """points: (ga_days, MCA-PSV cm/s). median_fn(ga_days) -> median cm/s (from clinic.care).
-    The MoM curves are drawn over ``valid`` (the reference range of the median)."""
+              lines: Iterable[tuple[float, str, str]], valid: tuple[int, int] = (18 * 7, 40 * 7)) -> Markup | None:
+    """points: (ga_days, MCA-PSV cm/s). median_fn(ga_days) -> median cm/s (from clinic.care);
+    lines: the MoM curves (``mom_lines(profile)``), drawn over ``valid`` (the reference range of the median)."""
+    lines = tuple(lines)
     points = sorted(p for p in points if p[0] is not None and p[1] is not None)
     if not points:
         return None
@@ -98,13 +105,13 @@ def mca_chart(points: list[tuple[int, float]], median_fn: Callable[[int], float]
     c_lo, c_hi = max(x_lo, valid[0]), min(x_hi, valid[1])
     curve_days = list(range(c_lo, c_hi + 1, 2)) if c_hi > c_lo else []
     medians = {d: median_fn(d) for d in curve_days}
-    y_max = max([p[1] for p in points] + [1.5 * m for m in medians.values()] + [40])
+    y_max = max([p[1] for p in points] + [max(mom for mom, _, _ in lines) * m for m in medians.values()] + [40])
     y_hi = int(math.ceil(y_max / 10.0) * 10) + 10
     ticks = [(v, str(v)) for v in range(0, y_hi + 1, 10 if y_hi <= 80 else 20)]
     out = _frame("MCA peak systolic velocity by gestational age", x_lo, x_hi, ticks, 0, y_hi)
     out.append(f'<text class="axis" x="12" y="{TOP + 6}" transform="rotate(-90 12 {TOP + 6})" text-anchor="end" '
                f'fill="{MUTED}">cm/s</text>')
-    for mom, label, cls in MOM_LINES:
+    for mom, label, cls in lines:
         if not curve_days:
             break
         pts = " ".join(f"{_x(d, x_lo, x_hi):.1f},{_y(mom * medians[d], 0, y_hi):.1f}" for d in curve_days)

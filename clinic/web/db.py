@@ -5,6 +5,7 @@ One Store is opened per app by ``create_app``; views reach it through ``get_stor
 from __future__ import annotations
 
 from datetime import datetime, timezone
+from pathlib import Path
 
 from flask import Flask, current_app
 
@@ -16,6 +17,11 @@ def _ext() -> dict:
 def get_store():
     """The app's clinic.store.Store."""
     return _ext()["store"]
+
+
+def get_data_dir() -> Path:
+    """The app's data folder (config.toml, records, keys, trust list, cards, bundles)."""
+    return Path(current_app.config["DATA_DIR"])
 
 
 def get_settings():
@@ -46,11 +52,12 @@ def care_context():
     return CareContext.from_settings(get_settings())
 
 
-def plan_for(pregnancy_id: str):
-    """The care engine's Plan for one pregnancy, now."""
+def plan_for(pregnancy_id: str, history: tuple | None = None):
+    """The care engine's Plan for one pregnancy, now. ``history``: the (woman, pregnancy, entries)
+    of ``store.history(pregnancy_id)`` when the caller has read it already."""
     from clinic.care import plan_pregnancy
 
-    woman, pregnancy, entries = get_store().history(pregnancy_id)
+    woman, pregnancy, entries = history or get_store().history(pregnancy_id)
     return plan_pregnancy(woman, pregnancy, entries, now=utcnow(), profile=get_profile(),
                           context=care_context())
 

@@ -128,12 +128,16 @@ _ITEM_ENTRY_KIND = (
 )
 
 
+def field_of(obj, key, default=None):
+    """``key`` of a plan part given as a dict (``to_dict()``) or as the care engine's object."""
+    return obj.get(key, default) if isinstance(obj, dict) else getattr(obj, key, default)
+
+
 def entry_kind_for(item) -> str | None:
     """The record kind whose entry completes this plan item: "dose" for a proposed anti-D dose."""
-    get = item.get if isinstance(item, dict) else (lambda k, d=None: getattr(item, k, d))
-    if get("dose_iu"):
+    if field_of(item, "dose_iu"):
         return "dose"
-    code = get("code") or ""
+    code = field_of(item, "code") or ""
     for prefix, kind in _ITEM_ENTRY_KIND:
         if code.startswith(prefix):
             return kind

@@ -49,6 +49,8 @@ from cryptography.hazmat.primitives import hashes, serialization
 from cryptography.hazmat.primitives.asymmetric import ec
 from cryptography.x509.oid import ExtendedKeyUsageOID, NameOID
 
+from clinic.signing.files import atomic_write
+
 log = logging.getLogger(__name__)
 
 TLS_DIR = "tls"
@@ -155,20 +157,6 @@ def hostname() -> str:
 
 # --- certificates ----------------------------------------------------------------------------
 
-def _write_private(path: Path, data: bytes, mode: int) -> None:
-    """Write via a temporary file in the same folder and rename, so a crash never leaves half a key."""
-    tmp = path.with_name(path.name + ".tmp")
-    if tmp.exists():
-        tmp.unlink()
-    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_EXCL, mode)
-    with os.fdopen(fd, "wb") as fh:
-        fh.write(data)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.chmod(tmp, mode)
-    os.replace(tmp, path)
-
-
 def _key_pem(key) -> bytes:
     return key.private_bytes(serialization.Encoding.PEM, serialization.PrivateFormat.PKCS8,
                              serialization.NoEncryption())
@@ -249,8 +237,8 @@ def _make_ca(paths: TLSPaths, hosts, now: dt.datetime) -> tuple:
             .add_extension(x509.AuthorityKeyIdentifier.from_issuer_subject_key_identifier(ski), critical=False)
             .add_extension(_ca_constraints(host, hosts), critical=False)
             .sign(key, hashes.SHA256()))
-    _write_private(paths.ca_key, _key_pem(key), 0o600)
-    _write_private(paths.ca_cert, cert.public_bytes(serialization.Encoding.PEM), 0o644)
+    atomic_write(paths.ca_key, _key_pem(key), 0o600)
+    atomic_write(paths.ca_cert, cert.public_bytes(serialization.Encoding.PEM), 0o644)
     log.warning("made a new certificate authority in %s: phones must install %s once", paths.dir, paths.ca_cert)
     return key, cert
 
@@ -311,8 +299,8 @@ def _make_server(paths: TLSPaths, ca_key, ca_cert, names, ips, now: dt.datetime)
             .add_extension(x509.SubjectKeyIdentifier.from_public_key(key.public_key()), critical=False)
             .add_extension(x509.AuthorityKeyIdentifier.from_issuer_public_key(ca_key.public_key()), critical=False)
             .sign(ca_key, hashes.SHA256()))
-    _write_private(paths.server_key, _key_pem(key), 0o600)
-    _write_private(paths.server_cert, cert.public_bytes(serialization.Encoding.PEM), 0o644)
+    atomic_write(paths.server_key, _key_pem(key), 0o600)
+    atomic_write(paths.server_cert, cert.public_bytes(serialization.Encoding.PEM), 0o644)
     log.info("server certificate for %s", ", ".join(names + [str(i) for i in ips]))
     return cert
 

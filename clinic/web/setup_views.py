@@ -19,9 +19,9 @@ import threading
 from pathlib import Path
 
 from flask import Blueprint, Response, abort, current_app, render_template, request, url_for
-from werkzeug.routing import BuildError
 
 from clinic.web import lan
+from clinic.web.db import get_data_dir
 
 bp = Blueprint("setup", __name__)
 
@@ -61,13 +61,6 @@ def static_version(static_dir: Path) -> tuple[str, list[str]]:
         return version, precache
 
 
-def _url(endpoint: str) -> str | None:
-    try:
-        return url_for(endpoint)
-    except BuildError:
-        return None
-
-
 def service_worker_response() -> Response:
     static_dir = Path(current_app.static_folder)
     source = static_dir / "sw.js"
@@ -79,7 +72,7 @@ def service_worker_response() -> Response:
         "precache": precache,
         "shell": list(SHELL_PAGES),
         # Pages worth holding before the laptop goes out of reach (when signed in).
-        "warm": [u for u in (_url("pages.today"), _url("records.booking")) if u],
+        "warm": [url_for("pages.today"), url_for("records.booking")],
     }
     text, n = re.subn(r"/\*@config\*/.*?/\*@end\*/",
                       lambda _m: "/*@config*/ var CONFIG = " + json.dumps(config) + "; /*@end*/",
@@ -90,10 +83,6 @@ def service_worker_response() -> Response:
     resp.headers["Service-Worker-Allowed"] = "/"
     resp.headers["Cache-Control"] = "no-cache"
     return resp
-
-
-def _data_dir() -> Path:
-    return Path(current_app.config["DATA_DIR"])
 
 
 def _lan_state() -> dict:
@@ -110,7 +99,7 @@ def _lan_state() -> dict:
         "host": host,
         "app_url": f"https://{host}:{https_port}/" if https_port else None,
         "addresses": addrs,
-        "fingerprint": lan.ca_fingerprint(_data_dir()),
+        "fingerprint": lan.ca_fingerprint(get_data_dir()),
     }
 
 
@@ -121,7 +110,7 @@ def phone():
 
 @bp.route("/setup/ca.crt")
 def ca_certificate():
-    der = lan.ca_der(_data_dir())
+    der = lan.ca_der(get_data_dir())
     if der is None:
         abort(404, "There is no clinic certificate yet: start the laptop with `rhledger serve --lan` once to make it.")
     resp = Response(der, mimetype="application/x-x509-ca-cert")

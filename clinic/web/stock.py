@@ -3,27 +3,23 @@ from __future__ import annotations
 
 from datetime import timedelta
 
+from clinic.reports.stock import EXPIRY_WARNING_DAYS, balances
 from clinic.web.db import get_settings, get_store, utcnow
 from clinic.web.helpers import now_local
-
-EXPIRY_WARNING_DAYS = 60
 
 
 def on_hand(records) -> list:
     """LotBalance of every lot of this facility now, soonest expiry first."""
-    from clinic.reports.stock import balances
-
     fid = get_settings().facility_id
     # Movements recorded at "now" (the default of the form) count at once.
-    bs = balances([r for r in records if r.get("facility") == fid], at=utcnow() + timedelta(seconds=1),
-                  warn_days=EXPIRY_WARNING_DAYS, day=now_local().date())
-    return bs
+    return balances([r for r in records if r.get("facility") == fid], at=utcnow() + timedelta(seconds=1),
+                    warn_days=EXPIRY_WARNING_DAYS, day=now_local().date())
 
 
 def suggest_lot(product: str) -> dict | None:
     """The lot of ``product`` on hand that expires first and has not expired (for dose forms)."""
-    for b in on_hand(list(get_store().iter_records(kind="stock"))):
-        if b.product == product and b.vials > 0 and not b.expired:
+    for b in lots_on_hand():
+        if b.product == product:
             return {"lot": b.lot, "lot_expiry": b.lot_expiry}
     return None
 

@@ -3,13 +3,6 @@
 (function () {
   "use strict";
 
-  function csrfToken() {
-    var m = document.querySelector('meta[name="csrf-token"]');
-    return m ? m.getAttribute("content") : "";
-  }
-  window.rhledger = window.rhledger || {};
-  window.rhledger.csrfToken = csrfToken;
-
   function gaText(days) { return Math.floor(days / 7) + "+" + (days % 7); }
 
   function daysBetween(a, b) { // ISO dates, b - a
