@@ -165,11 +165,18 @@ def done(item) -> bool:
     return item is not None and _a(item, "state") == "done"
 
 
+OPEN_STATES = ("due", "not-yet-due")
+OPEN_FOLLOW_UP = "deadline still open when the report was made: give it before the deadline"
+
+
 def outcome_of(item) -> str:
-    """on-time / late (the engine's timeliness) for a done item, else not-given."""
+    """on-time / late (the engine's timeliness) for a done item; "open" when the engine still
+    has it due (its deadline had not passed when the report was made); else not-given."""
     if done(item):
         t = _a(item, "timeliness")
         return t if t in ("on-time", "late") else "given"
+    if _a(item, "state") in OPEN_STATES:
+        return "open"
     return "not-given"
 
 
@@ -356,13 +363,16 @@ def _routine_late(case, month, tz):
 
 
 @indicator("routine_not_given", S_ROUTINE, "Routine dose not given",
-           _ROUTINE_DEF + "Numerator: no dose recorded for the item (follow-up list).",
+           _ROUTINE_DEF + "Numerator: no dose recorded for the item (follow-up list); a dose whose "
+           "deadline had not passed when the report was made is listed for follow-up but not counted.",
            "not given", _ROUTINE_DEN)
 def _routine_missed(case, month, tz):
     for it in _routine_hits(case, month, tz):
         o = outcome_of(it)
         miss = o == "not-given"
-        yield Hit(case, miss, o, f"{_a(it, 'title') or _a(it, 'code')} not given" if miss else None,
+        follow = (f"{_a(it, 'title') or _a(it, 'code')} not given" if miss
+                  else f"{_a(it, 'title') or _a(it, 'code')}: {OPEN_FOLLOW_UP}" if o == "open" else None)
+        yield Hit(case, miss, o, follow,
                   _a(it, "code"), _dt(_a(it, "closes")))
 
 
@@ -420,13 +430,17 @@ def _event_late(case, month, tz):
 
 
 @indicator("event_none", S_EVENT, "Event without a dose",
-           _EVENT_DEF + "Numerator: no dose recorded for the event (follow-up list).",
+           _EVENT_DEF + "Numerator: no dose recorded for the event and its deadline passed (follow-up "
+           "list); a dose whose 72 hours were still running when the report was made is listed for "
+           "follow-up but not counted.",
            "no dose", _EVENT_DEN)
 def _event_none(case, month, tz):
     for it, ev, at in _event_hits(case, month, tz):
         o = outcome_of(it)
         miss = o == "not-given"
-        yield Hit(case, miss, o, f"no anti-D after {ev.get('event_kind')}" if miss else None,
+        follow = (f"no anti-D after {ev.get('event_kind')}" if miss
+                  else f"anti-D after {ev.get('event_kind')}: {OPEN_FOLLOW_UP}" if o == "open" else None)
+        yield Hit(case, miss, o, follow,
                   _a(it, "code"), _dt(_a(it, "closes")), ev["id"], {"event": ev.get("event_kind")})
 
 
@@ -510,7 +524,8 @@ def _pp_late(case, month, tz):
 
 @indicator("postpartum_missed", S_BIRTH, "Postpartum dose missed",
            _PP_DEF + "Numerator: no dose inside the late window (no dose recorded: follow-up list, still "
-           "worth giving while the engine's late window is open; or a dose after the window).",
+           "worth giving while the engine's late window is open; or a dose after the window). A birth "
+           "whose 72 hours were still running when the report was made is listed but not counted.",
            "missed", _PP_DEN)
 def _pp_missed(case, month, tz):
     h = _postpartum_hit(case, month, tz)
@@ -518,7 +533,9 @@ def _pp_missed(case, month, tz):
         it, b = h
         o = _pp_outcome(it)
         miss = o in ("not-given", "after-window")
-        yield Hit(case, miss, o, "postpartum anti-D not given" if o == "not-given" else None,
+        follow = ("postpartum anti-D not given" if o == "not-given"
+                  else f"postpartum anti-D: {OPEN_FOLLOW_UP}" if o == "open" else None)
+        yield Hit(case, miss, o, follow,
                   CODE_POSTPARTUM_DOSE, _dt(_a(it, "closes")), b["id"],
                   {"late_until": _a(it, "late_until"), "state": _a(it, "state")})
 
