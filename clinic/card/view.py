@@ -153,7 +153,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
     age = ""
     if woman.get("birth_date"):
         bd = date.fromisoformat(woman["birth_date"])
-        ref = (now or datetime.now(timezone.utc)).date()
+        ref = (now or datetime.now(timezone.utc)).astimezone(tz).date()
         years = ref.year - bd.year - ((ref.month, ref.day) < (bd.month, bd.day))
         age = f"{show_date(woman['birth_date'])} ({years} y)"
     elif woman.get("stated_age") is not None:
@@ -179,7 +179,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
         "referrals": referrals,
         "issuer": {"name": issuer.get("name", ""), "phone": issuer.get("phone", ""),
                    "facility_id": issuer.get("facility_id", "")},
-        "issue": issue, "issued": show_date(issued_at), "issued_at": issued_at,
+        "issue": issue, "issued": show_date(local_date(issued_at, tz)), "issued_at": issued_at,
         "card_code": card_code, "qr_text": qr_text, "qr_version": qr_version, "omitted": omitted,
         "caution": (plan or {}).get("caution") or CAUTION,
         "base_caution": CAUTION,

@@ -158,6 +158,11 @@ def surveillance_items(pl) -> None:
             it = pl.item("surveillance-doppler")
             if it is not None and it.state != "not-needed":
                 it.reason += f"; last {r['mom']:.2f} MoM — {r['suggestion']}"
+                if r["mom"] >= p.get("surveillance.mca_mom_mild") and it.due is not None:
+                    # From the mild threshold up the next Doppler is due within one interval,
+                    # not within the usual two: the deadline is the due date itself.
+                    it.closes = it.due
+                    it.state = _open_state(now, it.opens, it.closes)
     fbs = [f for f in pl.h.of("fbs") if f.get("hb_g_dl") is not None]
     if fbs:
         f = fbs[-1]

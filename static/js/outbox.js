@@ -513,7 +513,7 @@
       var btn = form.querySelector('button[type="submit"], button:not([type])');
       form.insertBefore(lab, btn || null);
     }
-    say(form, "duplicates", [el("p", { text: "Nothing was saved yet. " + (data.error || "Similar women are on record:") }), list,
+    say(form, "duplicates", [el("p", { text: "Nothing was saved yet. A similar woman is on record; check she is not the same woman:" }), list,
       el("p", { text: "Open her record to book the pregnancy there, or tick “This is a different woman” and save again." })]);
   }
 

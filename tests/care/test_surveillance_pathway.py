@@ -118,3 +118,21 @@ def test_immune_anti_d_stops_prophylaxis():
     assert plan.pathway == "surveillance"
     for code in ("routine-dose-1", "routine-dose-2", "postpartum-dose"):
         assert item(plan, code).state == "not-needed"
+
+
+@pytest.mark.parametrize("mom,closes", [
+    # Below 1.29 MoM: repeat in 1-2 weeks, so the deadline is two weekly intervals after the scan.
+    (1.10, utc(2026, 9, 13, 9)),
+    # From 1.29 MoM (Mari et al. NEJM 2000, from memory) the repeat is within one interval: the
+    # deadline is the due date, a week after the scan (SMFM Clinical Guideline 8, 2015: weekly).
+    (1.35, utc(2026, 9, 6, 9)),
+])
+def test_doppler_deadline_tightens_from_the_mild_threshold(mom, closes):
+    ga = 26 * 7
+    psv = round(mom * mca_psv_median(ga), 1)
+    e = booked_negative()[:1] + [_ab("2026-07-19T09:00:00Z", titre=32),
+                                 rec("doppler", measured_at="2026-08-30T09:00:00Z", mca_psv_cm_s=psv)]
+    plan = make_plan(e, now=utc(2026, 8, 30, 12), profile="acog-2017")
+    it = item(plan, "surveillance-doppler")
+    assert it.due == utc(2026, 9, 6, 9)
+    assert it.closes == closes
