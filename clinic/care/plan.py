@@ -106,6 +106,11 @@ def _state(now, opens, closes, late_until) -> str:
     return "missed"
 
 
+def _event_words(e: dict) -> str:
+    """An event's kind in plain words for titles and messages ("antepartum haemorrhage")."""
+    return e["event_kind"].replace("-", " ")
+
+
 def _fmt(dt: datetime, tz) -> str:
     return dt.astimezone(tz).strftime("%Y-%m-%d %H:%M")
 
@@ -681,7 +686,7 @@ class _Planner:
                 raise CareInputError(f"event {e['id']}.{err.field}", err.errors[err.field]) from None
             closes, late_until = t + hours, t + late
             code = f"event-dose:{e['id']}"
-            it = self.add(code=code, category="event", title=f"Anti-D after {e['event_kind']} at {format_ga(ga)}",
+            it = self.add(code=code, category="event", title=f"Anti-D after {_event_words(e)} at {format_ga(ga)}",
                           state="due", due=t, opens=t, closes=closes, late_until=late_until, dose_iu=ed.dose_iu,
                           related_id=e["id"], reason=ed.reason, source=ed.source)
             given = self.assigned.get(f"event:{e['id']}", [])
@@ -692,7 +697,7 @@ class _Planner:
                     "" if it.timeliness == "on-time" else f", after the {ev['deadline_hours']:g}-hour deadline")
                 if ed.dose_iu and total < ed.dose_iu:
                     self.alert("dose-below-required", "warning",
-                               f"{total} IU given for the {e['event_kind']} at {format_ga(ga)}; the profile asks for "
+                               f"{total} IU given for the {_event_words(e)} at {format_ga(ga)}; the profile asks for "
                                f"{ed.dose_iu} IU: give the difference", ed.source, [e["id"]] + [d["id"] for d in given])
             elif self._stop_reason():
                 it.state, it.reason, it.dose_iu = "not-needed", self._stop_reason(), None
@@ -716,12 +721,12 @@ class _Planner:
                     it.reason = (f"the {ev['deadline_hours']:g}-hour deadline passed at {_fmt(closes, tz)}: give "
                                  f"{ed.dose_iu} IU now, a late dose may still protect (until {_fmt(late_until, tz)})")
                     self.alert("event-dose-overdue", "danger",
-                               f"no anti-D after the {e['event_kind']} of {_fmt(t, tz)}: deadline passed, give it now "
+                               f"no anti-D after the {_event_words(e)} of {_fmt(t, tz)}: deadline passed, give it now "
                                f"(late window open until {_fmt(late_until, tz)})", ed.source, [e["id"]])
                 elif it.state == "missed":
                     it.reason = "no anti-D within the deadline or the late window"
                     self.alert("event-dose-missed", "danger",
-                               f"no anti-D was given after the {e['event_kind']} of {_fmt(t, tz)}: the late window closed "
+                               f"no anti-D was given after the {_event_words(e)} of {_fmt(t, tz)}: the late window closed "
                                f"{_fmt(late_until, tz)}; tell the clinician, screen for antibodies later",
                                ed.source, [e["id"]])
                 elif self.rhd["managed_as"] in ("untyped", "retest"):
@@ -732,7 +737,7 @@ class _Planner:
             # FMH test for the event
             if ed.fmh_test_required and it.state != "not-needed" and not self._stop_reason():
                 fit = self.add(code=f"event-fmh:{e['id']}", category="event",
-                               title=f"FMH test after {e['event_kind']} at {format_ga(ga)}", state="due", due=t, opens=t,
+                               title=f"FMH test after {_event_words(e)} at {format_ga(ga)}", state="due", due=t, opens=t,
                                closes=closes, late_until=late_until, related_id=e["id"],
                                reason="take a sample for an FMH test (Kleihauer-Betke or flow cytometry), ideally before "
                                       "the anti-D, to see whether more anti-D is needed",
@@ -745,7 +750,7 @@ class _Planner:
                 last = given[-1]["_t"]
                 due = last + timedelta(days=ed.repeat_every_days)
                 rit = self.add(code=f"event-repeat:{e['id']}", category="event",
-                               title=f"Repeat anti-D for continuing bleeding after {e['event_kind']}", state="due", due=due,
+                               title=f"Repeat anti-D for continuing bleeding after {_event_words(e)}", state="due", due=due,
                                opens=due - timedelta(days=7), closes=due + hours, late_until=due + late,
                                dose_iu=ed.repeat_dose_iu, related_id=e["id"],
                                reason=f"continuing bleeding: at least {ed.repeat_dose_iu} IU every "
@@ -946,7 +951,7 @@ class _Planner:
             self.add(code=f"routine-dose-{r.number}", category="routine", title=f"Routine antenatal anti-D {r.number}",
                      state="not-needed", reason=reason, source=src)
         for e in self.h.of("event"):
-            self.add(code=f"event-dose:{e['id']}", category="event", title=f"Anti-D after {e['event_kind']}",
+            self.add(code=f"event-dose:{e['id']}", category="event", title=f"Anti-D after {_event_words(e)}",
                      state="not-needed", reason=reason, source=src, related_id=e["id"])
         self.add(code="postpartum-dose", category="postpartum", title="Anti-D after birth", state="not-needed",
                  reason=reason, source=src, related_id=self.birth["id"] if self.birth else None)
