@@ -63,7 +63,8 @@ def _planner(care: dict, source: str, where: str) -> Planner:
     ctx = CareContext(rhd_negative_frequency=float(care["rhd_negative_frequency"]),
                       maternal_blood_volume_ml=float(care["maternal_blood_volume_ml"]),
                       products=products, tz=ZoneInfo(care["timezone"]))
-    label = f"{profile.id} {profile.version}" + (f" with {dict(care['overrides'])}" if care.get("overrides") else "")
+    overrides = ", ".join(f"{k} = {v}" for k, v in sorted(dict(care.get("overrides") or {}).items()))
+    label = f"{profile.id} {profile.version}" + (f" (local changes: {overrides})" if overrides else "")
     return Planner(profile, ctx, label, source)
 
 
