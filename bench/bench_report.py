@@ -1,6 +1,6 @@
 """Benchmark: a month of clinic bundles imported at the district, then the monthly report.
 
-    /work/venv/bin/python bench/bench_report.py [--facilities 5] [--pregnancies 120] [--keep DIR]
+    python bench/bench_report.py [--facilities 5] [--pregnancies 120] [--keep DIR]
 
 Builds a synthetic district with seed_demo.synthetic.build_synthetic (N facilities x M
 pregnancies, bookings spread back in time), splits it into one signed bundle per facility
