@@ -89,7 +89,7 @@ def test_sensitising_event_puts_the_72_hour_deadline_on_today_and_the_dose_close
     [event] = kinds_of(live, p["id"], "event")
 
     page.goto("/")
-    item = page.locator("ul.worklist li.item", has_text="Akinyi Testcase Event").filter(has_text="Anti-D after abdominal-trauma")
+    item = page.locator("ul.worklist li.item", has_text="Akinyi Testcase Event").filter(has_text="Anti-D after abdominal trauma")
     assert item.count() == 1
     deadline = item.locator(".deadline").inner_text()
     assert "Give anti-D before" in deadline
@@ -112,7 +112,7 @@ def test_sensitising_event_puts_the_72_hour_deadline_on_today_and_the_dose_close
         page.click('form[data-api] button[type="submit"]')
     doses = kinds_of(live, p["id"], "dose")
     assert len(doses) == 1
-    done = page.locator("details.done-items li.item", has_text="Anti-D after abdominal-trauma")
+    done = page.locator("details.done-items li.item", has_text="Anti-D after abdominal trauma")
     assert done.count() == 1
     assert "state-done" in done.get_attribute("class")
     assert "done" in done.locator(".badge").text_content()
