@@ -6,13 +6,16 @@ matters, and derives every item from the profile. Nothing here stores anything.
 """
 from __future__ import annotations
 
+import functools
+import tomllib
 from dataclasses import dataclass
 from datetime import date, datetime, time, timedelta, timezone
+from importlib import resources
 
 from clinic.care import calc
 from clinic.care.dating import Dating, choose_dating, profile_thresholds
 from clinic.care.errors import CareInputError
-from clinic.care.ga import format_ga
+from clinic.care.ga import format_ga, parse_ga
 from clinic.care.model import Alert, CareContext, Plan, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
@@ -104,6 +107,14 @@ def _state(now, opens, closes, late_until) -> str:
     if late_until is None or now <= late_until:
         return "overdue"
     return "missed"
+
+
+@functools.lru_cache(maxsize=1)
+def _event_ga_ranges() -> tuple[str, dict[str, tuple[int, int]]]:
+    """The usual GA range of each event kind, from clinic/care/event_ga.toml (data, reviewable)."""
+    doc = tomllib.loads(resources.files("clinic.care").joinpath("event_ga.toml").read_text(encoding="utf-8"))
+    ranges = {k: (parse_ga(lo), parse_ga(hi)) for k, (lo, hi) in doc["ranges"].items()}
+    return doc["source"], ranges
 
 
 def _event_words(e: dict) -> str:
@@ -684,6 +695,13 @@ class _Planner:
                                      ongoing=bool(e.get("ongoing")))
             except CareInputError as err:
                 raise CareInputError(f"event {e['id']}.{err.field}", err.errors[err.field]) from None
+            src, ranges = _event_ga_ranges()
+            lo_hi = ranges.get(e["event_kind"])
+            if lo_hi and not lo_hi[0] <= ga <= lo_hi[1]:
+                self.alert("event-ga-unusual", "warning",
+                           f"{_event_words(e)} recorded at {format_ga(ga)}, outside its usual "
+                           f"{format_ga(lo_hi[0])} to {format_ga(lo_hi[1])}: check the kind of event and its date "
+                           f"(the anti-D dose is still planned)", src, [e["id"]])
             closes, late_until = t + hours, t + late
             code = f"event-dose:{e['id']}"
             it = self.add(code=code, category="event", title=f"Anti-D after {_event_words(e)} at {format_ga(ga)}",
