@@ -509,6 +509,17 @@ class Store:
             errors["reason"] = "is longer than 500 characters"
         return reason.strip()
 
+    def _current_for_change(self, record_id: str, errors: dict[str, str]) -> dict:
+        """The stored record an amend or void starts from (lock held); refuses a missing record
+        and the envelope errors already found (who, reason)."""
+        self._refresh()
+        current = self._get(record_id)
+        if current is None:
+            raise NotFound(f"record {record_id} does not exist")
+        if errors:
+            raise ValidationError(errors, current["kind"])
+        return current
+
     def amend(self, record_id: str, raw_changes: Mapping[str, Any], *, by: str, reason: str,
               expected_version: int | None = None, now: datetime | None = None) -> dict:
         """Change fields of a record; earlier values stay in ``amendments``; version + 1.
@@ -521,13 +532,8 @@ class Store:
         by = self._who(by, errors)
         reason = self._reason(reason, errors)
         with self._locked():
-            self._refresh()
-            current = self._get(record_id)
-            if current is None:
-                raise NotFound(f"record {record_id} does not exist")
+            current = self._current_for_change(record_id, errors)
             kind = current["kind"]
-            if errors:
-                raise ValidationError(errors, kind)
             if expected_version is not None and expected_version != current["version"]:
                 raise Conflict(f"record {record_id} was changed by someone else: it is at version "
                                f"{current['version']}, not {expected_version}; reload it and try again",
@@ -554,12 +560,7 @@ class Store:
         by = self._who(by, errors)
         reason = self._reason(reason, errors)
         with self._locked():
-            self._refresh()
-            current = self._get(record_id)
-            if current is None:
-                raise NotFound(f"record {record_id} does not exist")
-            if errors:
-                raise ValidationError(errors, current["kind"])
+            current = self._current_for_change(record_id, errors)
             if current.get("voided"):
                 raise Conflict(f"record {record_id} is already voided ({current.get('voided_reason')})",
                                current_version=current["version"])
