@@ -14,7 +14,7 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
-from clinic.records.schema import IU_PER_UG
+from clinic.care.model import Product
 
 DEFAULT_DATA_DIR = "instance"
 CONFIG_FILE = "config.toml"
@@ -31,19 +31,6 @@ class ConfigError(ValueError):
 def data_dir_from(option: str | os.PathLike | None) -> Path:
     """--data DIR, else $RHLEDGER_DATA, else ./instance."""
     return Path(option or os.environ.get("RHLEDGER_DATA") or DEFAULT_DATA_DIR)
-
-
-@dataclass(frozen=True)
-class Product:
-    """An anti-D product the facility stocks."""
-
-    name: str
-    vial_iu: int
-    routes: tuple[str, ...] = ("IM",)
-
-    @property
-    def vial_ug(self) -> float:
-        return self.vial_iu / IU_PER_UG
 
 
 @dataclass(frozen=True)

@@ -26,8 +26,7 @@ from typing import Any, Mapping
 from zoneinfo import ZoneInfo
 
 from clinic.care.calc import ug_to_iu
-from clinic.care.ga import parse_ga
-from clinic.records.validate import utc_text
+from clinic.records.values import parse_ga, utc_text
 from seed_demo.sites import (DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site,
                              site as site_def)
 from seed_demo.stories import STORIES, Story, When, stories_at

@@ -25,7 +25,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-from clinic.care.ga import parse_ga
+from clinic.records.values import parse_ga
 
 SITE_HOME = None  # a step with site=None happened at the story's home facility
 

@@ -28,7 +28,7 @@ from datetime import datetime, timedelta, timezone
 from pathlib import Path
 from typing import Callable, Iterator
 
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 
 SYNTH_NAMESPACE = uuid.UUID("0d6c7e52-9a1b-4f3e-8b7d-2c5e9f1a4b63")
 TIMEZONE = "Africa/Nairobi"

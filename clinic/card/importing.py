@@ -27,7 +27,7 @@ from pathlib import Path
 from clinic.card.codec import Reading
 from clinic.card.issue import CARDS_DIR, IMPORTED_FILE
 from clinic.records.schema import SCHEMA_VERSION
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 from clinic.signing.files import append_line
 
 IMPORTER = "card-import"

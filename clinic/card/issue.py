@@ -26,7 +26,7 @@ import filelock
 
 from clinic.card.codec import CardText, make_card_text
 from clinic.card.view import build_view
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 from clinic.signing.files import append_line
 from clinic.signing.keys import load_signing_key
 

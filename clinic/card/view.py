@@ -12,8 +12,7 @@ from typing import Any
 from clinic.care import CAUTION
 from clinic.care.calc import iu_to_ug, ug_to_iu
 from clinic.care.dating import ga_on
-from clinic.care.ga import format_ga
-from clinic.records.validate import parse_utc
+from clinic.records.values import format_ga, parse_utc
 SENSITISED_LINE = "Antibody present \u2013 refer"
 RHD_WORDS = {"positive": "RhD positive", "negative": "RhD negative", "weak-d": "weak D",
              "partial-d": "partial D", "inconclusive": "RhD inconclusive", "unknown": "RhD not known"}

@@ -9,8 +9,8 @@ import math
 from dataclasses import asdict, dataclass, field
 
 from clinic.care.errors import CareInputError, require_range
-from clinic.care.ga import format_ga
 from clinic.records.schema import EVENT_KINDS, IU_PER_UG
+from clinic.records.values import format_ga
 
 _EPS = 1e-9
 

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from datetime import date, datetime, timedelta, timezone, tzinfo
 
 from clinic.care.errors import CareInputError, require_range
-from clinic.care.ga import format_ga, parse_ga
+from clinic.records.values import format_ga, parse_ga
 
 # Naegele's rule as ACOG Committee Opinion 700 (2017) applies it: EDD = LMP + 280 days.
 PREGNANCY_DAYS = 280

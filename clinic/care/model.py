@@ -1,18 +1,30 @@
-"""What a plan is made of: CareContext (facility facts), PlanItem, Alert, Plan."""
+"""What a plan is made of: Product and CareContext (facility facts), PlanItem, Alert, Plan."""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
-from clinic.config import Product
 from clinic.records.schema import IU_PER_UG
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 
 STATES = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
 CATEGORIES = ("typing", "screen", "routine", "event", "postpartum", "birth", "surveillance")
 PATHWAYS = ("prophylaxis", "not-needed", "surveillance", "retest", "untyped", "ended")
 SEVERITIES = ("danger", "warning", "info")
+
+
+@dataclass(frozen=True)
+class Product:
+    """An anti-D product the facility stocks (``[[stock.products]]`` of the settings)."""
+
+    name: str
+    vial_iu: int
+    routes: tuple[str, ...] = ("IM",)
+
+    @property
+    def vial_ug(self) -> float:
+        return self.vial_iu / IU_PER_UG
 
 
 @dataclass(frozen=True)

@@ -15,11 +15,10 @@ from importlib import resources
 from clinic.care import calc
 from clinic.care.dating import Dating, choose_dating, profile_thresholds
 from clinic.care.errors import CareInputError
-from clinic.care.ga import format_ga, parse_ga
 from clinic.care.model import Alert, CareContext, Plan, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
-from clinic.records.validate import parse_utc
+from clinic.records.values import format_ga, parse_ga, parse_utc
 
 SKEW = timedelta(minutes=10)
 DUPLICATE_WITHIN = timedelta(minutes=30)

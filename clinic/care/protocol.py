@@ -16,8 +16,8 @@ from importlib import resources
 from typing import Any, Mapping
 
 from clinic.care.errors import ProfileError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS
+from clinic.records.values import GAFormatError, format_ga, parse_ga
 
 PROFILE_DIR = "profiles"
 

@@ -10,7 +10,7 @@ import math
 from datetime import date, timedelta
 
 from clinic.care import calc
-from clinic.records.validate import parse_utc
+from clinic.records.values import parse_utc
 
 # Alert severity for the fetal anaemia class of an MCA-PSV or fetal Hb result.
 ANAEMIA_ALERT_SEVERITY = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}

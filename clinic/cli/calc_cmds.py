@@ -15,10 +15,11 @@ from clinic.care import calc
 from clinic.care.dating import (RF_INTERCEPT, RF_SLOPE, edd_from_lmp, edd_naegele_calendar, ga_days_from_crl, ga_from_crl,
                                  ga_on)
 from clinic.care.errors import CareError, CareInputError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
+from clinic.care.model import Product
 from clinic.care.protocol import list_profiles, load_profile
-from clinic.config import ConfigError, Product, load_settings
+from clinic.config import ConfigError, load_settings
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS, GA_MIN_DAYS
+from clinic.records.values import GAFormatError, format_ga, parse_ga
 
 ERRORS = (CareError, GAFormatError, ConfigError)
 DEFAULT_PROFILE = "bsh-2014"

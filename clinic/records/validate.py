@@ -9,8 +9,8 @@ import math
 from datetime import date, datetime, timedelta, timezone, tzinfo
 from typing import Any, Mapping
 
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import IU_PER_UG, KINDS, Field
+from clinic.records.values import GAFormatError, format_ga, parse_ga, utc_text
 
 # A phone's clock may run a little ahead of the laptop's.
 CLOCK_SKEW = timedelta(minutes=10)
@@ -27,16 +27,6 @@ class ValidationError(ValueError):
 
 class UnknownKind(ValidationError):
     """A record kind the schema does not describe."""
-
-
-def utc_text(dt: datetime) -> str:
-    """A timezone-aware datetime as stored: UTC, seconds, trailing Z."""
-    return dt.astimezone(timezone.utc).replace(microsecond=0).strftime("%Y-%m-%dT%H:%M:%SZ")
-
-
-def parse_utc(text: str) -> datetime:
-    """A stored datetime string back to an aware UTC datetime."""
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
 
 
 def _empty(v: Any) -> bool:

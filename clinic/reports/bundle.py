@@ -34,7 +34,8 @@ from typing import Iterable
 import cbor2
 
 from clinic.records.schema import KINDS, SCHEMA_VERSION
-from clinic.records.validate import ValidationError, parse_utc, utc_text, validate_record
+from clinic.records.validate import ValidationError, validate_record
+from clinic.records.values import parse_utc, utc_text
 from clinic.store.errors import Conflict, StoreError
 
 MAGIC = b"RHLB"

@@ -22,7 +22,7 @@ from datetime import datetime, timedelta, timezone, tzinfo
 from typing import Any, Callable, Iterable
 
 from clinic.records.schema import IU_PER_UG
-from clinic.records.validate import parse_utc
+from clinic.records.values import parse_utc
 from clinic.reports.month import Month, percentage
 from clinic.reports.stock import EXPIRY_WARNING_DAYS
 

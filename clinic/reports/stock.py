@@ -10,7 +10,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from datetime import date, datetime, timedelta
 
-from clinic.records.validate import parse_utc
+from clinic.records.values import parse_utc
 
 OUT_MOVES = ("given", "discarded", "cold-chain-break")
 # A lot on hand that expires within this many days is flagged (stock page and monthly report).

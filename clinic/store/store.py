@@ -35,7 +35,8 @@ from tinydb import TinyDB
 
 from clinic.config import ConfigError, Settings, load_settings
 from clinic.records.schema import ENVELOPE_FIELDS, KINDS
-from clinic.records.validate import ValidationError, parse_utc, utc_text, validate_record
+from clinic.records.validate import ValidationError, validate_record
+from clinic.records.values import parse_utc, utc_text
 from clinic.store import backup as backups
 from clinic.store import migrate
 from clinic.store.audit import AuditLog

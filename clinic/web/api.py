@@ -11,7 +11,8 @@ from pathlib import Path
 
 from flask import Blueprint, Response, jsonify, request, url_for
 
-from clinic.records.validate import ValidationError, utc_text
+from clinic.records.validate import ValidationError
+from clinic.records.values import utc_text
 from clinic.web import calcs, worklist
 from clinic.web.auth import WRITE_ROLES, csrf_token, current_user, role_required
 from clinic.web.db import get_settings, get_store, plan_for

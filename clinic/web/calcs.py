@@ -10,9 +10,9 @@ from datetime import date
 
 from clinic.care import CAUTION  # noqa: F401 - the caution of the dose calculators (api.py)
 from clinic.care.errors import CareError, CareInputError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import EVENT_KINDS
 from clinic.records.validate import ValidationError
+from clinic.records.values import GAFormatError, format_ga, parse_ga
 from clinic.web.db import get_profile, get_settings
 
 

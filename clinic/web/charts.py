@@ -11,7 +11,7 @@ from typing import Callable, Iterable
 
 from markupsafe import Markup, escape
 
-from clinic.care.ga import format_ga
+from clinic.records.values import format_ga
 
 W, H = 360, 240
 LEFT, RIGHT, TOP, BOTTOM = 50, 14, 14, 34

@@ -5,8 +5,8 @@ from datetime import date, datetime, timezone
 
 from flask import Flask
 
-from clinic.care.ga import format_ga
 from clinic.records.schema import KINDS
+from clinic.records.values import format_ga
 from clinic.web.db import get_settings, utcnow
 
 
