@@ -164,13 +164,12 @@ def _split(data: bytes, name: str) -> tuple[bytes, bytes]:
 def read_bundle(data: bytes, trust, *, name: str = "bundle", now: datetime | None = None,
                 check=None) -> Bundle:
     """Check everything about a bundle and return its records, or raise BundleRefused."""
-    from clinic.signing.cose import verify1
     from clinic.signing.errors import CoseFormatError
 
     now = now or datetime.now(timezone.utc)
     signed, body = _split(data, name)
     try:
-        v = verify1(signed, trust, on_date=now.date())
+        v = trust.verify(signed, on_date=now.date())
     except CoseFormatError as e:
         raise BundleUnreadable(f"{name}: the signed header cannot be read ({e}); copy it again from the clinic") from None
     if v.state == "unknown-issuer":
