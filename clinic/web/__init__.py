@@ -58,11 +58,12 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     app.extensions["rhledger"] = {"settings": settings, "store": store, "profile": None}
     store.daily_backup_if_due()
 
-    from clinic.web import api, auth, db, helpers, pages, records_views, tools_views
+    from clinic.web import api, auth, db, helpers, pages, records_views, stock, tools_views
 
     db.init_app(app)
     auth.init_app(app)
     helpers.init_app(app)
+    stock.init_app(app)
     pages.register_errors(app)
     app.register_blueprint(auth.bp)
     app.register_blueprint(pages.bp)

@@ -13,6 +13,7 @@ from clinic.care.errors import CareError, CareInputError
 from clinic.records.schema import EVENT_KINDS
 from clinic.records.validate import ValidationError
 from clinic.records.values import GAFormatError, format_ga, parse_ga
+from clinic.web.clock import now_local
 from clinic.web.db import get_profile, get_settings
 
 
@@ -179,7 +180,6 @@ def run_units(args):
 def run_dating(args):
     """EDD and GA today from LMP / dating scan / agreed EDD, by the profile's dating rule."""
     from clinic.care.dating import choose_dating, profile_thresholds
-    from clinic.web.helpers import now_local
 
     prof = get_profile()
     crl = _num(args, "scan_crl_mm", required=False)

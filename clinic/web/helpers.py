@@ -1,4 +1,8 @@
-"""Small helpers shared by the pages: local time, GA text, form input to raw fields."""
+"""Small helpers shared by the pages: local time, GA text, form input to raw fields.
+
+The template filters and globals are registered by ``init_app``; the stock figures the forms
+show are ``clinic.web.stock`` (registered by its own ``init_app``).
+"""
 from __future__ import annotations
 
 from datetime import date, datetime, timezone
@@ -7,6 +11,7 @@ from flask import Flask
 
 from clinic.records.schema import KINDS
 from clinic.records.values import format_ga
+from clinic.web.clock import now_local, today_local
 from clinic.web.db import get_settings, utcnow
 
 
@@ -33,14 +38,6 @@ def local_input(value) -> str:
     """A UTC value as the value of a datetime-local input (facility's wall clock)."""
     dt = as_dt(value)
     return "" if dt is None else dt.astimezone(get_settings().tz).strftime("%Y-%m-%dT%H:%M")
-
-
-def now_local() -> datetime:
-    return utcnow().astimezone(get_settings().tz)
-
-
-def today_local() -> str:
-    return now_local().date().isoformat()
 
 
 def ga_text(days) -> str:
@@ -155,6 +152,3 @@ def init_app(app: Flask) -> None:
     app.add_template_global(now_local, "now_local")
     app.add_template_global(KINDS, "KINDS")
     app.add_template_global(entry_kind_for, "entry_kind_for")
-    from clinic.web.stock import lots_on_hand
-
-    app.add_template_global(lots_on_hand, "lots_on_hand")

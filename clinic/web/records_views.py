@@ -15,8 +15,9 @@ from clinic.records.schema import ENTRY_KINDS, KINDS
 from clinic.records.validate import ValidationError
 from clinic.web import charts, stock as stockmod
 from clinic.web.auth import WRITE_ROLES, current_user, role_required
+from clinic.web.clock import today_local
 from clinic.web.db import get_profile, get_settings, get_store, plan_for, utcnow
-from clinic.web.helpers import form_raw, local_input, today_local
+from clinic.web.helpers import form_raw, local_input
 from clinic.web.saving import BOOKING_PARTS, Duplicates, create_record, redirect_for, save_booking
 
 bp = Blueprint("records", __name__)
