@@ -30,17 +30,13 @@ class Product:
 @dataclass(frozen=True)
 class CareContext:
     """Facility facts the rules need: population RhD-negative frequency, default maternal
-    blood volume, stocked products, and the facility time zone (for days and GA)."""
+    blood volume, stocked products, and the facility time zone (for days and GA).
+    An installation's is built from its settings by ``clinic.care_inputs``."""
 
     rhd_negative_frequency: float = 0.15
     maternal_blood_volume_ml: float = 5000.0
     products: tuple[Product, ...] = ()
     tz: tzinfo = timezone.utc
-
-    @classmethod
-    def from_settings(cls, settings) -> "CareContext":
-        return cls(settings.rhd_negative_frequency, settings.maternal_blood_volume_ml,
-                   tuple(settings.products), settings.tz)
 
 
 def _dt(v):

@@ -17,6 +17,7 @@ from clinic.care.dating import (RF_INTERCEPT, RF_SLOPE, edd_from_lmp, edd_naegel
 from clinic.care.errors import CareError, CareInputError
 from clinic.care.model import Product
 from clinic.care.protocol import list_profiles, load_profile
+from clinic.care_inputs import care_inputs
 from clinic.config import ConfigError, load_settings
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS, GA_MIN_DAYS
 from clinic.records.values import GAFormatError, format_ga, parse_ga
@@ -34,14 +35,11 @@ def _settings(data):
 
 
 def _profile(profile_id, data):
+    """--profile, else the facility's; the facility's comes with its local overrides."""
     s = _settings(data)
-    if profile_id is None:
-        if s is not None:
-            return load_profile(s.profile, overrides=s.profile_overrides)
-        return load_profile(DEFAULT_PROFILE)
-    if s is not None and s.profile == profile_id:
-        return load_profile(profile_id, overrides=s.profile_overrides)
-    return load_profile(profile_id)
+    if s is not None and profile_id in (None, s.profile):
+        return care_inputs(s)[0]
+    return load_profile(DEFAULT_PROFILE if profile_id is None else profile_id)
 
 
 def _ga(text, field="ga") -> int:

@@ -55,7 +55,7 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     if not app.config.get("SECRET_KEY"):
         app.config["SECRET_KEY"] = _secret_key(data)
     store = Store(data, settings)
-    app.extensions["rhledger"] = {"settings": settings, "store": store, "profile": None}
+    app.extensions["rhledger"] = {"settings": settings, "store": store}
     store.daily_backup_if_due()
 
     from clinic.web import api, auth, db, helpers, pages, records_views, stock, tools_views
