@@ -9,8 +9,15 @@ from __future__ import annotations
 
 from clinic.printing import render_pdf, render_template
 from clinic.printing.fetcher import fetcher_class as _fetcher_class  # noqa: F401 - the one fetcher, tests reach it here
-from clinic.reports.coverage import (ATTRIBUTION, CAUTION, DISTRICT, INDICATORS, NULL_PERCENT,
-                                     TIME_ZONE_NOTE, MonthReport)
+from clinic.reports.coverage import (
+    ATTRIBUTION,
+    CAUTION,
+    DISTRICT,
+    INDICATORS,
+    NULL_PERCENT,
+    TIME_ZONE_NOTE,
+    MonthReport,
+)
 
 TEMPLATE = "report.html"
 
