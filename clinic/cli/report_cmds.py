@@ -11,6 +11,7 @@ import click
 
 from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
 from clinic.config import ConfigError
+from clinic.printing.errors import PrintError
 from clinic.records.validate import ValidationError
 from clinic.reports.bundle import BundleError
 from clinic.reports.coverage import ReportError
@@ -19,7 +20,7 @@ from clinic.signing.errors import SigningError
 from clinic.store.errors import StoreError
 
 LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, BundleError, ReportError,
-                  MonthFormatError, OSError)
+                  MonthFormatError, PrintError, OSError)
 FORMATS = ("csv", "pdf", "json", "fhir", "fhir-records", "follow-up")
 
 
