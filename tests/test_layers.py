@@ -7,7 +7,8 @@ lists the module that may.
     0  records               values (GA and UTC text), schema, the one validation layer
     1  care                  the care engine (pure)
     2  config, care_inputs   installation settings; the engine's inputs built from them
-    3  store, signing        the record store; facility keys, trust list, COSE
+    3  store, signing,       the record store; facility keys, trust list, COSE;
+       printing              the one PDF path (WeasyPrint)
     4  card, reports         patient-held cards; district bundles and reports
     5  web, cli              the Flask app; the command line (cli imports web only for `serve`)
 
@@ -31,7 +32,7 @@ LAYERS: dict[str, int] = {
     "records": 0,
     "care": 1,
     "config": 2, "care_inputs": 2,
-    "store": 3, "signing": 3,
+    "store": 3, "signing": 3, "printing": 3,
     "card": 4, "reports": 4,
     "web": 5, "cli": 5,
 }
@@ -309,7 +310,8 @@ def test_checker_accepts_what_the_rules_allow(tmp_path):
         "clinic/care/__init__.py": "from clinic.care import b\n",
         "clinic/care/b.py": "from clinic.records.a import *\n",
         "clinic/cli/__init__.py": "",
-        "clinic/cli/web_cmds.py": "def run():\n    from clinic.web import create_app\n    from seed_demo.scenario import x\n",
+        "clinic/cli/web_cmds.py": ("def run():\n    from clinic.web import create_app\n"
+                                   "    from seed_demo.scenario import x\n"),
         "clinic/web/__init__.py": "from clinic.care.b import y\n",
     })
     modules, edges = scan(root)

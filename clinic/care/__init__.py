@@ -11,12 +11,38 @@ Gestational-age text ("30+2") is ``clinic.records.values``.
 Decision support only: every dose it proposes must be confirmed against the product label
 and local protocol by a licensed clinician.
 """
-from clinic.care.calc import (EventDose, event_dose, fetal_hb_median, fetal_hb_mom, fetal_hb_result,
-                              fetal_hb_severity, fetal_rhd_probability, fmh_dose_iu, fmh_result, fmh_volume,
-                              hadlock_efw, iu_to_ug, iut_volume, mca_psv_median, mca_psv_mom, mca_result,
-                              mca_severity, nadler_blood_volume_ml, ug_to_iu, vials_for)
-from clinic.care.dating import (Dating, choose_dating, edd_from_lmp, edd_naegele_calendar, ga_days_from_crl,
-                                ga_from_crl, ga_on, redate_threshold_days)
+from clinic.care.calc import (
+    EventDose,
+    event_dose,
+    fetal_hb_median,
+    fetal_hb_mom,
+    fetal_hb_result,
+    fetal_hb_severity,
+    fetal_rhd_probability,
+    fmh_dose_iu,
+    fmh_result,
+    fmh_volume,
+    hadlock_efw,
+    iu_to_ug,
+    iut_volume,
+    mca_psv_median,
+    mca_psv_mom,
+    mca_result,
+    mca_severity,
+    nadler_blood_volume_ml,
+    ug_to_iu,
+    vials_for,
+)
+from clinic.care.dating import (
+    Dating,
+    choose_dating,
+    edd_from_lmp,
+    edd_naegele_calendar,
+    ga_days_from_crl,
+    ga_from_crl,
+    ga_on,
+    redate_threshold_days,
+)
 from clinic.care.errors import CareError, CareInputError, ProfileError
 from clinic.care.model import Alert, CareContext, Plan, PlanItem, Product
 from clinic.care.plan import plan_pregnancy
