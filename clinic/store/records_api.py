@@ -6,6 +6,7 @@ Reads hand out copies: a caller may change what it gets without touching the rea
 from __future__ import annotations
 
 import uuid
+from dataclasses import dataclass
 from datetime import datetime
 from typing import Any, Iterator, Mapping
 
@@ -21,6 +22,15 @@ from clinic.store.storage import TABLE
 from clinic.store.writer import Writer, copy_record
 
 
+@dataclass(frozen=True)
+class Created:
+    """What ``Store.create`` did: ``record`` as stored, and ``created`` False when this id was
+    stored before with the same fields (a replayed offline submission: nothing was written)."""
+
+    record: dict
+    created: bool
+
+
 class RecordsAPI(Writer):
     """Creating, changing and reading records (part of ``Store``)."""
 
@@ -29,11 +39,12 @@ class RecordsAPI(Writer):
     def create(self, kind: str, raw_fields: Mapping[str, Any], *, by: str, facility: str,
                woman_id: str | None = None, pregnancy_id: str | None = None,
                record_id: str | None = None, now: datetime | None = None,
-               origin: Mapping[str, Any] | None = None) -> dict:
+               origin: Mapping[str, Any] | None = None) -> Created:
         """Validate and store a new record; durable before it returns.
 
-        The same ``record_id`` again with the same fields returns the stored record (a replayed
-        offline submission); with different fields it raises Conflict.
+        The same ``record_id`` again with the same fields returns the stored record with
+        ``created`` False (a replayed offline submission); with different fields it raises
+        Conflict.
         """
         now = self._now(now)
         errors: dict[str, str] = {}
@@ -78,7 +89,7 @@ class RecordsAPI(Writer):
                         and existing.get("pregnancy_id") == pregnancy_id
                         and fields in (fields_of(existing), original_fields(existing)))
                 if same:
-                    return copy_record(existing)
+                    return Created(copy_record(existing), created=False)
                 raise Conflict(f"record {record_id} already exists with different content "
                                f"(a {existing['kind']}, version {existing['version']})",
                                current_version=existing["version"])
@@ -90,7 +101,7 @@ class RecordsAPI(Writer):
                       "schema": migrate.target_version(), "voided": False, "voided_reason": None}
             self._write(record, audit_entry("create", record, at=at, by=by,
                                             changes={k: {"old": None, "new": v} for k, v in fields.items()}))
-            return copy_record(record)
+            return Created(copy_record(record), created=True)
 
     def _current_for_change(self, record_id: str, errors: dict[str, str]) -> dict:
         """The stored record an amend or void starts from (lock held); refuses a missing record

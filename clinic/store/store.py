@@ -3,7 +3,7 @@
 =================  =============================================================
 ``writer``         the lock (thread + cross-process) and the ordered write: journal,
                    index line, partition file, audit line (one record or a batch)
-``records_api``    create / amend / void and every read
+``records_api``    create / amend / void and every read (``Created``)
 ``merge``          import and merge: merge_foreign, merge_foreign_many, check_foreign
 ``check``          the full check behind ``rhledger check`` (``CheckReport``)
 ``opening``        opening a data directory: leftovers, schema, verification, migration

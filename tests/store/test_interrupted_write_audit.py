@@ -34,7 +34,7 @@ def _lines(store: Store, ids=None) -> Counter:
 
 def _typing(store, pregnancy, rid="t-1"):
     return store.create("typing", {"abo": "O", "rhd": "negative", "tested_on": "2026-03-02"}, by=USERNAME,
-                        facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=NOW)
+                        facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=NOW).record
 
 
 def test_crash_between_partition_write_and_audit_append_keeps_the_audit_line(data_dir, store, pregnancy,
