@@ -157,7 +157,7 @@ def stock_add_cmd(data, move, product, vial_iu, lot, expiry, vials, at, by, note
            "lot_expiry": expiry, "vials": vials}
     if notes:
         raw["notes"] = notes
-    rec = store.create("stock", raw, by=by, facility=store.settings.facility_id, now=now)
+    rec = store.create("stock", raw, by=by, facility=store.settings.facility_id, now=now).record
     click.echo(f"Recorded {move} of {vials} vial(s) of lot {lot} ({rec['id']}).")
 
 
