@@ -7,23 +7,26 @@ from datetime import timedelta
 
 import pytest
 
-from tests.web.browser_fixtures import (browser, context, demo_site, live, outbox_entries, page,  # noqa: F401
-                                        sign_in, wait_for_worker)
+from tests.web.browser_fixtures import browser, context, demo_site, live, outbox_entries, page, sign_in, wait_for_worker  # noqa: F401
 from tests.web.test_browser_flows import local_today, make_pregnancy
 
 pytestmark = pytest.mark.browser
 
 # What base.html loaded before the split.
 OLD_SCRIPTS = '<script src="/static/js/net-queue.js"></script>\n<script src="/static/js/outbox.js"></script>\n'
-KEPT_PAGES = """e => caches.open("rhledger-pages-v1").then(c => Promise.all([c.keys(), c.match(e.url, {ignoreVary: true})]))
+KEPT_PAGES = """e => caches.open("rhledger-pages-v1")
+    .then(c => Promise.all([c.keys(), c.match(e.url, {ignoreVary: true})]))
     .then(r => [r[0].length, !!r[1]])"""
 # A page being kept again is briefly absent from the cache (keepPage deletes, then puts).
-AS_KEPT_BEFORE = """e => caches.open("rhledger-pages-v1").then(c => c.match(e.url, {ignoreVary: true}).then(hit => !hit ? null : hit.text().then(html => {
+AS_KEPT_BEFORE = """e => caches.open("rhledger-pages-v1").then(c => c.match(e.url, {ignoreVary: true})
+  .then(hit => !hit ? null : hit.text().then(html => {
     const now = html.replace(/(<script src="\\/static\\/js\\/outbox\\/[\\w-]+\\.js"><\\/script>\\n)+/, e.old);
-    return now === html ? html.includes(e.old) : c.put(e.url, new Response(now, {status: 200, headers: hit.headers})).then(() => true);
-})))"""
+    if (now === html) { return html.includes(e.old); }
+    return c.put(e.url, new Response(now, {status: 200, headers: hit.headers})).then(() => true);
+  })))"""
 KEPT_AS_BEFORE = """e => caches.open("rhledger-pages-v1").then(c => c.match(e.url, {ignoreVary: true}))
-    .then(hit => hit ? hit.text().then(html => html.includes(e.old) && !html.includes("/static/js/outbox/")) : false)"""
+    .then(hit => !hit ? false : hit.text())
+    .then(html => !!html && html.includes(e.old) && !html.includes("/static/js/outbox/"))"""
 
 
 def test_a_form_kept_before_the_split_still_saves_to_the_outbox_offline(page, context, live):

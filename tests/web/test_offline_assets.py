@@ -133,7 +133,8 @@ def test_each_vendored_library_has_its_licence_version_and_unchanged_files(lib):
 
 
 def test_nothing_is_fetched_from_outside_the_laptop():
-    ours = [STATIC_DIR / "sw.js", *sorted((STATIC_DIR / "js").rglob("*.js")), *sorted((STATIC_DIR / "css").glob("*.css"))]
+    ours = [STATIC_DIR / "sw.js", *sorted((STATIC_DIR / "js").rglob("*.js")),
+            *sorted((STATIC_DIR / "css").glob("*.css"))]
     templates = sorted((Path(__file__).parents[2] / "clinic" / "web" / "templates").rglob("*.html"))
     for path in ours + templates:
         text = path.read_text(encoding="utf-8")
