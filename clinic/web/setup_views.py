@@ -3,7 +3,7 @@
     /setup/          on the phone: install the clinic's CA certificate, then open the app
     /setup/ca.crt    the CA certificate (DER, application/x-x509-ca-cert)
     /setup/qr        on the laptop: the setup address as a QR code to scan with the phone
-    /outbox          what waits on this phone (rendered in the browser by static/js/outbox.js)
+    /outbox          what waits on this phone (rendered in the browser by static/js/outbox/page.js)
     /offline         shown by the service worker for a page the phone has not kept
     /net/ping        204: "the laptop is reachable" for the connection indicator
 

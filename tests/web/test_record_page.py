@@ -95,7 +95,7 @@ def test_api_pregnancy_returns_woman_entries_and_plan(client, booked):
 
 def test_base_layout_has_the_offline_hooks(client):
     html = client.get("/").get_data(as_text=True)
-    for hook in ('<span id="net-state"></span>', '<span id="outbox-count"></span>', "/static/js/outbox.js",
+    for hook in ('<span id="net-state"></span>', '<span id="outbox-count"></span>', "/static/js/outbox/start.js",
                  "/static/js/app.js", "/static/css/app.css", 'name="viewport"',
                  'rel="manifest" href="/manifest.webmanifest"'):
         assert hook in html, hook
