@@ -63,7 +63,6 @@ def surveillance_items(pl: Planner) -> None:
     findings = [f for f in (pl.ab.findings or []) if f["origin"] == "immune"]
     if not findings:
         return
-    screens = {x["id"]: x for x in pl.h.of("screen")}
     by_ab: dict[str, list[dict]] = {}
     for f in findings:
         by_ab.setdefault(f["antibody"], []).append(f)
