@@ -10,6 +10,7 @@ This module runs the rule sections in order; each lives in ``clinic.care.plannin
 """
 from __future__ import annotations
 
+from collections.abc import Iterable
 from datetime import datetime, timezone
 from typing import Any
 
@@ -24,7 +25,7 @@ from clinic.care.protocol import Profile
 from clinic.care.surveillance import surveillance_items
 
 
-def plan_pregnancy(woman: dict, pregnancy: dict, entries, *, now: datetime, profile: Profile,
+def plan_pregnancy(woman: dict, pregnancy: dict, entries: Iterable[Any], *, now: datetime, profile: Profile,
                    context: CareContext | None = None) -> Plan:
     """The plan for one pregnancy as of ``now`` (an aware datetime)."""
     if not isinstance(now, datetime) or now.tzinfo is None:
@@ -46,7 +47,7 @@ def _dating(pr: dict, p: Profile) -> Dating:
         raise CareInputError(f"pregnancy.{e.field}", e.errors[e.field]) from None
 
 
-def _start(woman: dict, pregnancy: dict, entries: Any, now: datetime, p: Profile, ctx: CareContext) -> Planner:
+def _start(woman: dict, pregnancy: dict, entries: Iterable[Any], now: datetime, p: Profile, ctx: CareContext) -> Planner:
     """The facts every section reads, drawn once (their alerts come first, in this order)."""
     h = History(entries, now, ctx.tz)
     dating = _dating(pregnancy, p)

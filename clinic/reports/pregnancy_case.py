@@ -47,21 +47,21 @@ class Case:
     last_facility: str = ""      # facility of the latest entry
     uses_fetal_rhd: bool = False  # kept for callers; the report reads the plan's fetal-rhd-test item instead
 
-    def __post_init__(self):
+    def __post_init__(self) -> None:
         if not self.facility:
             self.facility = self.pregnancy.get("facility", "")
         if not self.last_facility:
             latest = max(self.entries + [self.pregnancy], key=lambda r: r.get("created_at") or "")
             self.last_facility = latest.get("facility", self.facility)
         self._items = list(attr(self.plan, "items", []) or [])
-        self._by_code = {}
+        self._by_code: dict[str, Any] = {}
         self._by_cat: dict[str, list] = defaultdict(list)
         for it in self._items:
             self._by_code.setdefault(attr(it, "code"), it)
             self._by_cat[attr(it, "category")].append(it)
         self._by_kind: dict[str, list[dict]] = defaultdict(list)
         for e in self.entries:
-            self._by_kind[e.get("kind")].append(e)
+            self._by_kind[e.get("kind", "")].append(e)
         self._months: dict = {}
 
     def months(self, tz: tzinfo) -> frozenset:

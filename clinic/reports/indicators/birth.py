@@ -1,13 +1,18 @@
 """Indicators of births to RhD-negative women: cord typing, the postpartum dose and FMH test."""
 from __future__ import annotations
 
+from collections.abc import Iterator
+from datetime import tzinfo
+from typing import Any
+
 from clinic.care.codes import ItemCode
 from clinic.records.validate import parse_utc
 from clinic.reports.indicators.registry import S_BIRTH, Hit, indicator
-from clinic.reports.pregnancy_case import OPEN_FOLLOW_UP, as_dt, attr, done, eligible, outcome_of
+from clinic.reports.month import Month
+from clinic.reports.pregnancy_case import Case, OPEN_FOLLOW_UP, as_dt, attr, done, eligible, outcome_of
 
 
-def _birth_in(case, month, tz):
+def _birth_in(case: Case, month: Month, tz: tzinfo) -> dict | None:
     """The first birth record of an RhD-negative woman, if it falls in the month."""
     if case.managed_as != "negative":
         return None
@@ -20,7 +25,7 @@ def _birth_in(case, month, tz):
 @indicator("births_neg", S_BIRTH, "Births to RhD-negative women",
            "Pregnancies of women the engine manages as RhD negative whose (first) birth is in the month.",
            "births", None)
-def _births(case, month, tz):
+def _births(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     b = _birth_in(case, month, tz)
     if b is not None:
         yield Hit(case, True, "born", due=parse_utc(b["born_at"]), record_id=b["id"])
@@ -30,7 +35,7 @@ def _births(case, month, tz):
            "Of the births to RhD-negative women in the month, those whose cord-blood typing the "
            "care engine counts as done (every baby's RhD recorded as positive or negative).",
            "baby RhD recorded", "births to RhD-negative women in the month")
-def _cord(case, month, tz):
+def _cord(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     b = _birth_in(case, month, tz)
     if b is None:
         return
@@ -40,7 +45,7 @@ def _cord(case, month, tz):
               ItemCode.CORD_TYPING, parse_utc(b["born_at"]), b["id"])
 
 
-def _pp_outcome(it) -> str:
+def _pp_outcome(it: Any) -> str:
     """on-time, late (inside the engine's late window), after-window, or not-given."""
     o = outcome_of(it)
     if o == "late":
@@ -50,7 +55,7 @@ def _pp_outcome(it) -> str:
     return o
 
 
-def _postpartum_hit(case, month, tz):
+def _postpartum_hit(case: Case, month: Month, tz: tzinfo) -> tuple[Any, dict] | None:
     b = _birth_in(case, month, tz)
     it = case.item(ItemCode.POSTPARTUM_DOSE)
     if b is None or not eligible(it):
@@ -66,7 +71,7 @@ _PP_DEF = ("Births in the month to RhD-negative women for whom the care engine p
 @indicator("postpartum_on_time", S_BIRTH, "Postpartum dose within 72 h",
            _PP_DEF + "Numerator: the engine judges the dose on time (72 h after the birth in the "
            "usual profiles).", "dose on time", _PP_DEN)
-def _pp_on_time(case, month, tz):
+def _pp_on_time(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     h = _postpartum_hit(case, month, tz)
     if h:
         it, b = h
@@ -77,7 +82,7 @@ def _pp_on_time(case, month, tz):
 @indicator("postpartum_late", S_BIRTH, "Postpartum dose late (inside the late window)",
            _PP_DEF + "Numerator: given after 72 h but inside the profile's late window (the engine's "
            "'late').", "dose late", _PP_DEN)
-def _pp_late(case, month, tz):
+def _pp_late(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     h = _postpartum_hit(case, month, tz)
     if h:
         it, b = h
@@ -90,7 +95,7 @@ def _pp_late(case, month, tz):
            "worth giving while the engine's late window is open; or a dose after the window). A birth "
            "whose 72 hours were still running when the report was made is listed but not counted.",
            "missed", _PP_DEN)
-def _pp_missed(case, month, tz):
+def _pp_missed(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     h = _postpartum_hit(case, month, tz)
     if h:
         it, b = h
@@ -107,7 +112,7 @@ def _pp_missed(case, month, tz):
            "Births in the month to RhD-negative women for whom the care engine plans a "
            "postpartum FMH test; numerator: the test done.",
            "FMH tested", "births needing an FMH test")
-def _pp_fmh(case, month, tz):
+def _pp_fmh(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     b = _birth_in(case, month, tz)
     it = case.item(ItemCode.POSTPARTUM_FMH)
     if b is None or not eligible(it):

@@ -1,15 +1,19 @@
 """Indicators of booking and typing, and of RhD-negative women at booking."""
 from __future__ import annotations
 
+from collections.abc import Iterator
+from datetime import tzinfo
+
 from clinic.care.codes import ItemCode
 from clinic.reports.indicators.registry import S_BOOK, S_NEG, Hit, booked_in, booking_due, indicator
-from clinic.reports.pregnancy_case import as_dt, attr, done, eligible
+from clinic.reports.month import Month
+from clinic.reports.pregnancy_case import Case, as_dt, attr, done, eligible
 
 
 @indicator("bookings", S_BOOK, "Bookings",
            "Pregnancies whose booking date falls in the month.",
            "pregnancies booked in the month", None)
-def _bookings(case, month, tz):
+def _bookings(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     if booked_in(case, month):
         yield Hit(case, True, "booked", due=booking_due(case, tz))
 
@@ -18,7 +22,7 @@ def _bookings(case, month, tz):
            "Of the pregnancies booked in the month, those whose maternal ABO/RhD typing the care "
            "engine counts as done (a valid result recorded for this pregnancy).",
            "booked and typed", "pregnancies booked in the month")
-def _typed(case, month, tz):
+def _typed(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     if not booked_in(case, month):
         return
     it = case.item(ItemCode.BOOKING_TYPING)
@@ -31,13 +35,13 @@ def _typed(case, month, tz):
            "Of the pregnancies booked in the month and typed, those the care engine manages as "
            "RhD negative (including D variants the profile manages as negative).",
            "managed as RhD negative", "booked in the month and typed")
-def _neg_share(case, month, tz):
+def _neg_share(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     if not booked_in(case, month) or not done(case.item(ItemCode.BOOKING_TYPING)):
         return
     yield Hit(case, case.managed_as == "negative", case.managed_as or "")
 
 
-def _neg_booked(case, month):
+def _neg_booked(case: Case, month: Month) -> bool:
     return booked_in(case, month) and case.managed_as == "negative"
 
 
@@ -45,7 +49,7 @@ def _neg_booked(case, month):
            "Of the RhD-negative women booked in the month, those whose booking antibody screen "
            "the care engine counts as done.",
            "screened at booking", "RhD-negative women booked in the month")
-def _neg_screen(case, month, tz):
+def _neg_screen(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     if not _neg_booked(case, month):
         return
     it = case.item(ItemCode.BOOKING_SCREEN)
@@ -60,7 +64,7 @@ def _neg_screen(case, month, tz):
            "typing (its 'partner-typing' item, not 'not needed'), those whose item the engine counts "
            "as done (the baby's father's RhD recorded as positive or negative).",
            "partner RhD known", "RhD-negative women booked in the month (partner typing planned)")
-def _partner(case, month, tz):
+def _partner(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     it = case.item(ItemCode.PARTNER_TYPING)
     if not _neg_booked(case, month) or not eligible(it):
         return
@@ -75,7 +79,7 @@ def _partner(case, month, tz):
            "prophylaxis), those whose test the engine counts as done. Empty where the profile does "
            "not use the test.",
            "fetal RHD result recorded", "RhD-negative women booked in the month (fetal RHD test planned)")
-def _fetal(case, month, tz):
+def _fetal(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     it = case.item(ItemCode.FETAL_RHD_TEST)
     if not _neg_booked(case, month) or not eligible(it):
         return

@@ -1,15 +1,19 @@
 """Indicators of the outcome (new immune sensitisations) and of the anti-D used."""
 from __future__ import annotations
 
+from collections.abc import Iterator
+from datetime import tzinfo
+
 from datetime import datetime
 
 from clinic.care.codes import AlertCode
 from clinic.records.validate import parse_utc
 from clinic.reports.indicators.registry import S_OUTCOME, S_USE, Hit, indicator
-from clinic.reports.pregnancy_case import ReportError, attr
+from clinic.reports.month import Month
+from clinic.reports.pregnancy_case import Case, ReportError, attr
 
 
-def _first_immune_anti_d(case) -> dict | None:
+def _first_immune_anti_d(case: Case) -> dict | None:
     """The first screen the care engine judged immune anti-D (its 'immune-anti-d' alert names
     the screens), or None. The engine judges it, not the laboratory's field alone."""
     screens = []
@@ -23,7 +27,7 @@ def _first_immune_anti_d(case) -> dict | None:
     return min(screens, key=lambda s: (s["sampled_at"], s["id"])) if screens else None
 
 
-def prophylaxis_history(case, before: datetime) -> list[dict]:
+def prophylaxis_history(case: Case, before: datetime) -> list[dict]:
     """Anti-D doses of this pregnancy given before ``before`` (for the sensitisation list)."""
     out = []
     for d in sorted(case.of_kind("dose"), key=lambda d: d["given_at"]):
@@ -39,7 +43,7 @@ def prophylaxis_history(case, before: datetime) -> list[dict]:
            "the engine's from the level and the doses given before) was sampled in the month. Each is listed with the anti-D doses "
            "of the pregnancy before it and the earlier anti-D history as recorded at booking.",
            "new immune sensitisations", None)
-def _new_sens(case, month, tz):
+def _new_sens(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     s = _first_immune_anti_d(case)
     if s is None:
         return
@@ -53,7 +57,7 @@ def _new_sens(case, month, tz):
 
 @indicator("antid_doses", S_USE, "Anti-D doses given",
            "Anti-D doses recorded as given in the month (any indication).", "doses", None)
-def _doses(case, month, tz):
+def _doses(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for d in case.of_kind("dose"):
         at = parse_utc(d["given_at"])
         if month.contains(at, tz):

@@ -1,15 +1,20 @@
 """Indicators of routine antenatal prophylaxis and of anti-D after sensitising events."""
 from __future__ import annotations
 
+from collections.abc import Iterator
+from datetime import tzinfo
+from typing import Any
+
 from datetime import datetime, timezone
 
 from clinic.care.codes import Category, ItemCode, parse_item_code
 from clinic.records.validate import parse_utc
 from clinic.reports.indicators.registry import S_EVENT, S_ROUTINE, Hit, closed_in, indicator
-from clinic.reports.pregnancy_case import OPEN_FOLLOW_UP, ReportError, as_dt, attr, done, eligible, outcome_of
+from clinic.reports.month import Month
+from clinic.reports.pregnancy_case import Case, OPEN_FOLLOW_UP, ReportError, as_dt, attr, done, eligible, outcome_of
 
 
-def _routine_hits(case, month, tz):
+def _routine_hits(case: Case, month: Month, tz: tzinfo) -> Iterator[Any]:
     for it in case.items_of(Category.ROUTINE):
         if eligible(it) and closed_in(month, as_dt(attr(it, "closes")), tz):
             yield it
@@ -25,7 +30,7 @@ _ROUTINE_DEF = ("Routine doses the care engine plans for the woman (not 'not nee
 @indicator("routine_on_time", S_ROUTINE, "Routine dose given inside the window",
            _ROUTINE_DEF + "Numerator: the engine judges the dose given on time.",
            "given inside the window", _ROUTINE_DEN)
-def _routine_on_time(case, month, tz):
+def _routine_on_time(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it in _routine_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "on-time", o, None, attr(it, "code"), as_dt(attr(it, "closes")))
@@ -34,7 +39,7 @@ def _routine_on_time(case, month, tz):
 @indicator("routine_late", S_ROUTINE, "Routine dose given late",
            _ROUTINE_DEF + "Numerator: the engine judges the dose given, but late.",
            "given late", _ROUTINE_DEN)
-def _routine_late(case, month, tz):
+def _routine_late(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it in _routine_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "late", o, None, attr(it, "code"), as_dt(attr(it, "closes")))
@@ -44,7 +49,7 @@ def _routine_late(case, month, tz):
            _ROUTINE_DEF + "Numerator: no dose recorded for the item (follow-up list); a dose whose "
            "deadline had not passed when the report was made is listed for follow-up but not counted.",
            "not given", _ROUTINE_DEN)
-def _routine_missed(case, month, tz):
+def _routine_missed(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it in _routine_hits(case, month, tz):
         o = outcome_of(it)
         miss = o == "not-given"
@@ -58,7 +63,7 @@ def _routine_missed(case, month, tz):
            "Women for whom the engine plans two or more routine doses and whose last routine "
            "window closed in the month; numerator: every routine dose given (on time or late).",
            "all routine doses given", "women with two routine doses, last window closed in the month")
-def _routine_both(case, month, tz):
+def _routine_both(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     items = [it for it in case.items_of(Category.ROUTINE) if eligible(it)]
     if len(items) < 2:
         return
@@ -70,12 +75,12 @@ def _routine_both(case, month, tz):
 
 
 
-def _is_event_dose(code) -> bool:
+def _is_event_dose(code: Any) -> bool:
     base, ref = parse_item_code(str(code))
     return base == ItemCode.EVENT_DOSE and ref is not None
 
 
-def _event_hits(case, month, tz):
+def _event_hits(case: Case, month: Month, tz: tzinfo) -> Iterator[tuple[Any, dict, datetime]]:
     for it in case.items_of(Category.EVENT):
         if not _is_event_dose(attr(it, "code")) or not eligible(it):
             continue
@@ -96,7 +101,7 @@ _EVENT_DEF = ("Sensitising events that happened in the month for which the care 
 @indicator("event_on_time", S_EVENT, "Event dose within 72 h",
            _EVENT_DEF + "Numerator: the engine judges the dose on time (inside its window, 72 h in "
            "the usual profiles).", "dose on time", _EVENT_DEN)
-def _event_on_time(case, month, tz):
+def _event_on_time(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it, ev, at in _event_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "on-time", o, None, attr(it, "code"), as_dt(attr(it, "closes")), ev["id"],
@@ -106,7 +111,7 @@ def _event_on_time(case, month, tz):
 @indicator("event_late", S_EVENT, "Event dose late",
            _EVENT_DEF + "Numerator: dose given after the window (the engine's 'late').",
            "dose late", _EVENT_DEN)
-def _event_late(case, month, tz):
+def _event_late(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it, ev, at in _event_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "late", o, None, attr(it, "code"), as_dt(attr(it, "closes")), ev["id"],
@@ -118,7 +123,7 @@ def _event_late(case, month, tz):
            "list); a dose whose 72 hours were still running when the report was made is listed for "
            "follow-up but not counted.",
            "no dose", _EVENT_DEN)
-def _event_none(case, month, tz):
+def _event_none(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     for it, ev, at in _event_hits(case, month, tz):
         o = outcome_of(it)
         miss = o == "not-given"
