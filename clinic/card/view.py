@@ -11,11 +11,18 @@ from typing import Any
 
 from clinic.care import CAUTION
 from clinic.care.calc import iu_to_ug, ug_to_iu
-from clinic.care.dating import ga_on
 from clinic.care.codes import OPEN_STATES
+from clinic.care.dating import ga_on
 from clinic.care.ga import format_ga
-from clinic.records.choices import (DAT_NOT_RECORDED, DAT_WORDS, FETAL_RHD_WORDS, INDICATION_WORDS, RHD_WORDS,
-                                    event_words, plain_words)
+from clinic.records.choices import (
+    DAT_NOT_RECORDED,
+    DAT_WORDS,
+    FETAL_RHD_WORDS,
+    INDICATION_WORDS,
+    RHD_WORDS,
+    event_words,
+    plain_words,
+)
 from clinic.records.validate import parse_utc
 
 SENSITISED_LINE = "Antibody present \u2013 refer"
@@ -102,7 +109,8 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
         managed = (plan or {}).get("rhd", {}).get("managed_as")
         blood = {"abo": t["abo"] if t["abo"] != "unknown" else "ABO ?", "rhd": RHD_WORDS.get(t["rhd"], t["rhd"]),
                  "variant": variant, "tested_on": show_date(t.get("tested_on")), "lab": t.get("lab", ""),
-                 "managed_as": RHD_WORDS.get(managed, "") if managed and t["rhd"] not in ("positive", "negative") else ""}
+                 "managed_as": (RHD_WORDS.get(managed, "") if managed and t["rhd"] not in ("positive", "negative")
+                                else "")}
     pt = _latest(live, "partner_typing")
     fr = _latest(live, "fetal_rhd")
     screens = [{"date": show_time(s["sampled_at"], tz)[:-6], "ga": _ga_text(s, local_date(s["sampled_at"], tz), edd),
@@ -160,7 +168,8 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                       "prior_sensitising": pregnancy.get("prior_sensitising", ""),
                       "prior_anti_d": pregnancy.get("prior_anti_d", "")},
         "blood": blood,
-        "partner": ({"rhd": RHD_WORDS.get(pt["rhd"], pt["rhd"]), "abo": pt.get("abo", "") if pt.get("abo") != "unknown" else "",
+        "partner": ({"rhd": RHD_WORDS.get(pt["rhd"], pt["rhd"]),
+                     "abo": pt.get("abo", "") if pt.get("abo") != "unknown" else "",
                      "zygosity": pt.get("rhd_zygosity", "") if pt.get("rhd_zygosity") != "unknown" else ""}
                     if pt else None),
         "fetal": ({"result": FETAL_RHD_WORDS[fr["result"]],

@@ -47,7 +47,8 @@ def _dating(pr: dict, p: Profile) -> Dating:
         raise CareInputError(f"pregnancy.{e.field}", e.errors[e.field]) from None
 
 
-def _start(woman: dict, pregnancy: dict, entries: Iterable[Any], now: datetime, p: Profile, ctx: CareContext) -> Planner:
+def _start(woman: dict, pregnancy: dict, entries: Iterable[Any], now: datetime, p: Profile,
+           ctx: CareContext) -> Planner:
     """The facts every section reads, drawn once (their alerts come first, in this order)."""
     h = History(entries, now, ctx.tz)
     dating = _dating(pregnancy, p)

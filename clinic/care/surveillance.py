@@ -113,7 +113,8 @@ def surveillance_items(pl: Planner) -> None:
             it.state = _open_state(now, opens, closes)
             it.reason = (f"repeat every {s['titre_interval_days_early'] // 7} weeks until "
                          f"{p.get('surveillance.interval_change_ga')}, then every "
-                         f"{s['titre_interval_days_late'] // 7} weeks (last sample {last_sample.astimezone(tz):%Y-%m-%d})")
+                         f"{s['titre_interval_days_late'] // 7} weeks "
+                         f"(last sample {last_sample.astimezone(tz):%Y-%m-%d})")
     elif critical_at is not None:
         closes = critical_at + timedelta(days=7)
         it = pl.add(ItemCode.SURVEILLANCE_REFERRAL, "Referral to fetal medicine", "due",
@@ -147,7 +148,8 @@ def surveillance_items(pl: Planner) -> None:
             dit.reason = (f"MCA-PSV every {s['doppler_interval_days']} days from "
                           f"{p.get('surveillance.doppler_from_ga')} (suggestion for the fetal medicine team)")
         if not born:
-            pl.alert(AlertCode.DELIVERY_TIMING, "info", f"suggestion for the specialist: {s['delivery_text']}", src, critical_ids[:1])
+            pl.alert(AlertCode.DELIVERY_TIMING, "info", f"suggestion for the specialist: {s['delivery_text']}", src,
+                     critical_ids[:1])
     # latest Doppler and fetal blood results
     dops = pl.h.of("doppler")
     if dops:

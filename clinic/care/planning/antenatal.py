@@ -109,7 +109,8 @@ def _typing_item_state(pl: Planner, it: PlanItem, records: list[Record], what: s
         return True
     if pl.born_at:
         if it.closes is not None and pl.born_at <= it.closes:
-            it.state, it.reason = "not-needed", "the baby was born before the window closed: the cord blood typing decides"
+            it.state = "not-needed"
+            it.reason = "the baby was born before the window closed: the cord blood typing decides"
         else:
             it.state, it.reason = "missed", f"no {what} recorded before the birth"
         return True
@@ -204,8 +205,9 @@ def routine_doses(pl: Planner) -> None:
                     f"Routine antenatal anti-D {r.number} of {len(p.routine_doses())} ({regimen['title']})",
                     "due", "", src, due=opens, opens=opens, closes=closes, late_until=late, dose_iu=r.dose_iu)
         given = pl.assigned.get(routine_key(r.number))
-        window = (f"{r.dose_iu} IU ({calc.iu_to_ug(r.dose_iu):g} µg) from {format_ga(r.opens_ga_days)}, on time until "
-                  f"{format_ga(r.closes_ga_days)}, late dose still worth giving until {format_ga(r.late_until_ga_days)}")
+        window = (f"{r.dose_iu} IU ({calc.iu_to_ug(r.dose_iu):g} µg) from {format_ga(r.opens_ga_days)}, on time "
+                  f"until {format_ga(r.closes_ga_days)}, late dose still worth giving until "
+                  f"{format_ga(r.late_until_ga_days)}")
         if given:
             pl.mark_done(it, given[0], closes)
             it.reason = (f"given {fmt(given[0].at, tz)} ({given[0].iu} IU)"

@@ -53,9 +53,9 @@ def judge_antibodies(h: History, doses: list[Dose], profile: Profile, alerts: li
                                         f"(a clinician confirms)", src, [s["id"]]))
                 elif origin == "undetermined":
                     alerts.append(Alert(AlertCode.ANTI_D_UNDETERMINED, "warning",
-                                        "anti-D found after recent prophylaxis without a titre or quantitation: ask the "
-                                        "laboratory to quantify; prophylaxis continues until it is shown to be immune",
-                                        src, [s["id"]]))
+                                        "anti-D found after recent prophylaxis without a titre or quantitation: ask "
+                                        "the laboratory to quantify; prophylaxis continues until it is shown to be "
+                                        "immune", src, [s["id"]]))
             else:
                 finding["origin"] = "immune"
                 finding["reason"] = "red cell antibody other than anti-D: surveillance for HDFN"

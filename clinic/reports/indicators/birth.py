@@ -9,7 +9,7 @@ from clinic.care.codes import ItemCode
 from clinic.records.validate import parse_utc
 from clinic.reports.indicators.registry import S_BIRTH, Hit, indicator
 from clinic.reports.month import Month
-from clinic.reports.pregnancy_case import Case, OPEN_FOLLOW_UP, as_dt, attr, done, eligible, outcome_of
+from clinic.reports.pregnancy_case import OPEN_FOLLOW_UP, Case, as_dt, attr, done, eligible, outcome_of
 
 
 def _birth_in(case: Case, month: Month, tz: tzinfo) -> dict | None:

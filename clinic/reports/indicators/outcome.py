@@ -2,9 +2,7 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
-from datetime import tzinfo
-
-from datetime import datetime
+from datetime import datetime, tzinfo
 
 from clinic.care.codes import AlertCode
 from clinic.records.validate import parse_utc
@@ -40,7 +38,8 @@ def prophylaxis_history(case: Case, before: datetime) -> list[dict]:
 @indicator("new_sensitisations", S_OUTCOME, "New immune anti-D found",
            "Pregnancies whose first antibody screen showing anti-D that the care engine judges "
            "immune (its 'immune-anti-d' alert: the laboratory's judgement where recorded, otherwise "
-           "the engine's from the level and the doses given before) was sampled in the month. Each is listed with the anti-D doses "
+           "the engine's from the level and the doses given before) was sampled in the month. "
+           "Each is listed with the anti-D doses "
            "of the pregnancy before it and the earlier anti-D history as recorded at booking.",
            "new immune sensitisations", None)
 def _new_sens(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:

@@ -2,16 +2,14 @@
 from __future__ import annotations
 
 from collections.abc import Iterator
-from datetime import tzinfo
+from datetime import datetime, timezone, tzinfo
 from typing import Any
-
-from datetime import datetime, timezone
 
 from clinic.care.codes import Category, ItemCode, parse_item_code
 from clinic.records.validate import parse_utc
 from clinic.reports.indicators.registry import S_EVENT, S_ROUTINE, Hit, closed_in, indicator
 from clinic.reports.month import Month
-from clinic.reports.pregnancy_case import Case, OPEN_FOLLOW_UP, ReportError, as_dt, attr, done, eligible, outcome_of
+from clinic.reports.pregnancy_case import OPEN_FOLLOW_UP, Case, ReportError, as_dt, attr, done, eligible, outcome_of
 
 
 def _routine_hits(case: Case, month: Month, tz: tzinfo) -> Iterator[Any]:
@@ -102,7 +100,7 @@ _EVENT_DEF = ("Sensitising events that happened in the month for which the care 
            _EVENT_DEF + "Numerator: the engine judges the dose on time (inside its window, 72 h in "
            "the usual profiles).", "dose on time", _EVENT_DEN)
 def _event_on_time(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
-    for it, ev, at in _event_hits(case, month, tz):
+    for it, ev, _at in _event_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "on-time", o, None, attr(it, "code"), as_dt(attr(it, "closes")), ev["id"],
                   {"event": ev.get("event_kind")})
@@ -112,7 +110,7 @@ def _event_on_time(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
            _EVENT_DEF + "Numerator: dose given after the window (the engine's 'late').",
            "dose late", _EVENT_DEN)
 def _event_late(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
-    for it, ev, at in _event_hits(case, month, tz):
+    for it, ev, _at in _event_hits(case, month, tz):
         o = outcome_of(it)
         yield Hit(case, o == "late", o, None, attr(it, "code"), as_dt(attr(it, "closes")), ev["id"],
                   {"event": ev.get("event_kind")})
@@ -124,7 +122,7 @@ def _event_late(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
            "follow-up but not counted.",
            "no dose", _EVENT_DEN)
 def _event_none(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
-    for it, ev, at in _event_hits(case, month, tz):
+    for it, ev, _at in _event_hits(case, month, tz):
         o = outcome_of(it)
         miss = o == "not-given"
         follow = (f"no anti-D after {ev.get('event_kind')}" if miss
