@@ -122,7 +122,8 @@ def parse_item_code(code: str) -> tuple[str, str | None]:
     if sep:
         return base, ref
     head, _, number = code.rpartition("-")
-    if number.isdigit() and ITEMS.get(head, None) is not None and ITEMS[head].ref == "number":
+    spec = ITEMS.get(head)
+    if number.isdigit() and spec is not None and spec.ref == "number":
         return head, number
     return code, None
 
