@@ -5,13 +5,11 @@ from dataclasses import dataclass, field
 from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
+from clinic.care.codes import CATEGORIES, PATHWAYS, SEVERITIES, STATES
 from clinic.records.schema import IU_PER_UG
 from clinic.records.values import utc_text
 
-STATES = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
-CATEGORIES = ("typing", "screen", "routine", "event", "postpartum", "birth", "surveillance")
-PATHWAYS = ("prophylaxis", "not-needed", "surveillance", "retest", "untyped", "ended")
-SEVERITIES = ("danger", "warning", "info")
+__all__ = ["CATEGORIES", "PATHWAYS", "SEVERITIES", "STATES", "Alert", "CareContext", "Plan", "PlanItem"]
 
 
 @dataclass(frozen=True)

@@ -10,14 +10,21 @@ from datetime import date, datetime, timezone
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, resolve_data
 from clinic.care import calc
-from clinic.care.dating import (RF_INTERCEPT, RF_SLOPE, edd_from_lmp, edd_naegele_calendar, ga_days_from_crl, ga_from_crl,
-                                 ga_on)
+from clinic.care.dating import (
+    RF_INTERCEPT,
+    RF_SLOPE,
+    edd_from_lmp,
+    edd_naegele_calendar,
+    ga_days_from_crl,
+    ga_from_crl,
+    ga_on,
+)
 from clinic.care.errors import CareError, CareInputError
 from clinic.care.model import Product
 from clinic.care.protocol import list_profiles, load_profile
 from clinic.care_inputs import care_inputs
+from clinic.cli.common import clean_errors, data_option, emit_json, resolve_data
 from clinic.config import ConfigError, load_settings
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS, GA_MIN_DAYS
 from clinic.records.values import GAFormatError, format_ga, parse_ga

@@ -8,7 +8,6 @@
 
 Depends on nothing of ours except ``clinic.config`` (the facility's name for its own entry).
 """
-from clinic.signing.errors import (CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError, SigningError,
-                                   TrustListError)
+from clinic.signing.errors import CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError, SigningError, TrustListError
 
 __all__ = ["CoseFormatError", "DistrictKeyUnconfirmed", "KeyStoreError", "SigningError", "TrustListError"]

@@ -47,11 +47,19 @@ from typing import Any, Iterable, Mapping
 import cbor2
 
 from clinic.signing import cose
-from clinic.signing.errors import (CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError,
-                                   TrustListError)
+from clinic.signing.errors import CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError, TrustListError
 from clinic.signing.files import atomic_write
-from clinic.signing.keys import (KeyInfo, SigningKey, b64, current_key_info, fingerprint_of, kid_of,
-                                 normalise_fingerprint, public_from_b64, retired_keys)
+from clinic.signing.keys import (
+    KeyInfo,
+    SigningKey,
+    b64,
+    current_key_info,
+    fingerprint_of,
+    kid_of,
+    normalise_fingerprint,
+    public_from_b64,
+    retired_keys,
+)
 
 TRUST_DIR = "trust"
 LIST_FILE = "trust-list.cose"

@@ -17,8 +17,7 @@ import hmac
 import secrets
 from urllib.parse import urlsplit
 
-from flask import (Blueprint, abort, flash, g, jsonify, redirect, render_template, request,
-                   session, url_for)
+from flask import Blueprint, abort, flash, g, jsonify, redirect, render_template, request, session, url_for
 from werkzeug.security import check_password_hash
 
 from clinic.web.db import get_settings

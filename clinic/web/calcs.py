@@ -17,7 +17,6 @@ from clinic.web.clock import now_local
 from clinic.web.db import get_profile, get_settings
 
 
-
 def _inp(name, label, type="number", *, required=True, min=None, max=None, step="any", choices=(),
          default=None, help=""):
     return {"name": name, "label": label, "type": type, "required": required, "min": min, "max": max,

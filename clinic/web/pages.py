@@ -1,8 +1,7 @@
 """Today (the worklist), Find a woman, the service worker and manifest, error pages, nav."""
 from __future__ import annotations
 
-from flask import (Blueprint, abort, current_app, redirect, render_template, request,
-                   send_from_directory, url_for)
+from flask import Blueprint, abort, current_app, redirect, render_template, request, send_from_directory, url_for
 
 from clinic.web import worklist
 from clinic.web.db import get_settings, get_store
@@ -89,8 +88,9 @@ def manifest():
 
 
 def _error_page(e):
-    from clinic.web.auth import is_api
     from flask import jsonify
+
+    from clinic.web.auth import is_api
 
     code = getattr(e, "code", 500) or 500
     desc = getattr(e, "description", str(e))

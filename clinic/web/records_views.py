@@ -9,11 +9,13 @@ from __future__ import annotations
 
 from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
 
+from clinic.care.codes import Category
 from clinic.care.errors import CareError
-from clinic.store import Conflict
 from clinic.records.schema import ENTRY_KINDS, KINDS
 from clinic.records.validate import ValidationError
-from clinic.web import charts, stock as stockmod
+from clinic.store import Conflict
+from clinic.web import charts
+from clinic.web import stock as stockmod
 from clinic.web.auth import WRITE_ROLES, current_user, role_required
 from clinic.web.clock import today_local
 from clinic.web.db import get_profile, get_settings, get_store, plan_for, utcnow
@@ -35,7 +37,9 @@ BOOKING_FIELDS = {
 PART_LABELS = {"woman": "Woman", "pregnancy": "This pregnancy and its dating",
                "typing": "Her blood group", "partner_typing": "Baby's father's blood group",
                "screen": "Booking antibody screen (IAT)"}
-INDICATION_OF = {"routine": "routine-antenatal", "event": "sensitising-event", "postpartum": "postpartum"}
+# The dose indication to preset when a dose is recorded from a plan item of this category.
+INDICATION_OF = {Category.ROUTINE: "routine-antenatal", Category.EVENT: "sensitising-event",
+                 Category.POSTPARTUM: "postpartum"}
 
 
 def time_of(rec: dict) -> str:

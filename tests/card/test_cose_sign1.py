@@ -3,8 +3,8 @@ from __future__ import annotations
 
 import cbor2
 import pytest
-from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 from cryptography.hazmat.primitives import serialization
+from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 
 from clinic.signing.cose import parse1, sign1
 from clinic.signing.errors import CoseFormatError

@@ -9,8 +9,13 @@ import pytest
 
 from clinic.signing.cose import sign1
 from clinic.signing.errors import KeyStoreError
-from clinic.signing.keys import (ensure_facility_key, fingerprint_of, load_signing_key, normalise_fingerprint,
-                                 rotate_facility_key)
+from clinic.signing.keys import (
+    ensure_facility_key,
+    fingerprint_of,
+    load_signing_key,
+    normalise_fingerprint,
+    rotate_facility_key,
+)
 from clinic.signing.trust import load_trust
 
 

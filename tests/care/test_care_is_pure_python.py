@@ -7,7 +7,7 @@ import clinic.care
 
 
 def test_engine_imports_no_web_or_storage():
-    mods = [f"clinic.care.{m.name}" for m in pkgutil.iter_modules(clinic.care.__path__)]
+    mods = [m.name for m in pkgutil.walk_packages(clinic.care.__path__, "clinic.care.")]
     code = ("import sys\n"
             + "".join(f"import {m}\n" for m in mods)
             + "from clinic.care import plan_pregnancy, load_profile\n"

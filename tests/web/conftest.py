@@ -5,7 +5,6 @@ from __future__ import annotations
 import re
 import uuid
 from datetime import datetime, timedelta, timezone
-
 from zoneinfo import ZoneInfo
 
 import pytest

@@ -12,8 +12,17 @@ from datetime import datetime, timedelta
 
 import pytest
 
-from tests.web.browser_fixtures import (browser, context, demo_site, live, outbox_entries, page,  # noqa: F401
-                                        shot, sign_in, wait_for_worker)
+from tests.web.browser_fixtures import (  # noqa: F401
+    browser,
+    context,
+    demo_site,
+    live,
+    outbox_entries,
+    page,
+    shot,
+    sign_in,
+    wait_for_worker,
+)
 
 pytestmark = pytest.mark.browser
 

@@ -9,6 +9,7 @@ import pytest
 from clinic.records.schema import ENTRY_KINDS, KINDS
 from tests.web.conftest import days_ago
 
+
 def _local_hour_ago():
     from datetime import datetime, timedelta
     from zoneinfo import ZoneInfo
