@@ -35,6 +35,7 @@ def _empty(v: Any) -> bool:
 
 def _range_text(f: Field) -> str:
     if f.type == "ga":
+        assert f.min is not None and f.max is not None  # every GA field has both limits (schema._ga)
         return f"{format_ga(int(f.min))} to {format_ga(int(f.max))} weeks+days"
     if f.min is not None and 0 < f.min < 0.001:
         # A "positive number" field: its tiny minimum is not a value anyone should read.
@@ -84,6 +85,7 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
             days = parse_ga(v)  # an int is days (JSON); text is weeks+days or weeks (forms)
         except GAFormatError as e:
             raise ValueError(str(e)) from None
+        assert f.min is not None and f.max is not None  # every GA field has both limits (schema._ga)
         if days < f.min or days > f.max:
             raise ValueError(f"{format_ga(days)} is outside the allowed range {_range_text(f)}")
         return days
@@ -139,7 +141,8 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
             # Local wall-clock time at the facility.
             dt = dt.replace(tzinfo=tz)
         if f.not_future and dt > now + CLOCK_SKEW:
-            raise ValueError(f"{dt.astimezone(tz).strftime('%Y-%m-%d %H:%M')} is in the future; the latest allowed is now")
+            when = dt.astimezone(tz).strftime("%Y-%m-%d %H:%M")
+            raise ValueError(f"{when} is in the future; the latest allowed is now")
         if dt.year < 1900:
             raise ValueError("is before 1900")
         return utc_text(dt)
