@@ -87,7 +87,9 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
     try:
         ZoneInfo(tzname)
     except (ZoneInfoNotFoundError, ValueError):
-        raise ConfigError(f"facility.timezone {tzname!r} in {source} is not an IANA time zone such as Africa/Nairobi") from None
+        raise ConfigError(
+            f"facility.timezone {tzname!r} in {source} is not an IANA time zone such as Africa/Nairobi"
+        ) from None
     freq = float(care.get("rhd_negative_frequency", 0.15))
     if not 0 < freq < 1:
         raise ConfigError(f"care.rhd_negative_frequency {freq} in {source}: allowed range is above 0 and below 1")
@@ -105,8 +107,14 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
         role = a.get("role", "midwife")
         if role not in ROLES:
             raise ConfigError(f"accounts[{i}].role {role!r} in {source}: allowed {', '.join(ROLES)}")
-        accounts.append(Account(str(_req(a, "username", f"accounts[{i}]")), a.get("display_name", a["username"]),
-                                role, str(_req(a, "password_hash", f"accounts[{i}]"))))
+        accounts.append(
+            Account(
+                str(_req(a, "username", f"accounts[{i}]")),
+                a.get("display_name", a["username"]),
+                role,
+                str(_req(a, "password_hash", f"accounts[{i}]")),
+            )
+        )
     keep = int(doc.get("backup", {}).get("keep", 14))
     if keep < 1:
         raise ConfigError(f"backup.keep {keep} in {source}: keep at least 1")
@@ -130,8 +138,10 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
 def load_settings(data_dir: Path) -> Settings:
     path = Path(data_dir) / CONFIG_FILE
     if not path.exists():
-        raise ConfigError(f"{path} does not exist: run `rhledger init --data {data_dir}` first "
-                          f"(or `rhledger demo` for the demo scenario)")
+        raise ConfigError(
+            f"{path} does not exist: run `rhledger init --data {data_dir}` first "
+            f"(or `rhledger demo` for the demo scenario)"
+        )
     try:
         doc = tomllib.loads(path.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as e:

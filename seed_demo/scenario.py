@@ -27,8 +27,8 @@ from zoneinfo import ZoneInfo
 
 from clinic.care.calc import ug_to_iu
 from clinic.records.values import parse_ga, utc_text
-from seed_demo.sites import (DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site,
-                             site as site_def)
+from seed_demo.sites import DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site
+from seed_demo.sites import site as site_def
 from seed_demo.stories import STORIES, Story, When, stories_at
 
 __all__ = ["SITES", "FACILITY_SITES", "build_site", "plan_site", "config_text", "DemoError", "record_id",
@@ -156,7 +156,7 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
            Planned(story.home, story, "create", "pregnancy", pid,
                    _pregnancy_fields(story, lmp, clock.local_date(booked_at)), booked_at + timedelta(minutes=2),
                    "midwife", woman_id=wid)]
-    for i, (step, t) in enumerate(zip(story.steps, times)):
+    for i, (step, t) in enumerate(zip(story.steps, times, strict=False)):
         where = step.site or story.home
         s = site_def(where)
         if step.kind == "status":
@@ -244,7 +244,7 @@ def _stock_plan(s: Site, doses: list[Planned], clock: Clock) -> list[Planned]:
     first_use = {}
     for d in doses:
         first_use[d.fields["lot"]] = min(first_use.get(d.fields["lot"], d.at), d.at)
-    for key, lot in s.lots.items():
+    for _key, lot in s.lots.items():
         # Delivered before the first dose given from it (the stories reach back months).
         t = clock.now - timedelta(days=lot.received_days_ago)
         if lot.lot in first_use:
