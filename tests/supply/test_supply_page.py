@@ -5,8 +5,7 @@ from __future__ import annotations
 import json
 from datetime import datetime, timedelta
 
-from tests.web.conftest import (TZ, app, booked, client, data_dir, days_ago, officer, password_hash,  # noqa: F401
-                                store)
+from tests.web.conftest import TZ, app, booked, client, data_dir, days_ago, officer, password_hash, store  # noqa: F401
 
 
 def _receive(client, lot, expiry, vials):

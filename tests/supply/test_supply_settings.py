@@ -27,7 +27,8 @@ def test_values_are_read():
 
 
 @pytest.mark.parametrize("key, value, words", [
-    ("horizon_weeks", 0, "from 1 to 52"), ("horizon_weeks", 53, "from 1 to 52"), ("horizon_weeks", "12", "from 1 to 52"),
+    ("horizon_weeks", 0, "from 1 to 52"), ("horizon_weeks", 53, "from 1 to 52"),
+    ("horizon_weeks", "12", "from 1 to 52"),
     ("lead_time_days", -1, "from 0 to 180"), ("lead_time_days", 181, "from 0 to 180"),
     ("transfer_days", 61, "from 0 to 60"), ("transfer_days", 1.5, "from 0 to 60"),
     ("upper_percentile", 100, "from 50 to 99"), ("upper_percentile", 49, "from 50 to 99"),
