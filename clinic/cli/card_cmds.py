@@ -24,9 +24,9 @@ def _errors():
     from clinic.card.importing import CardImportError
     from clinic.card.issue import CardIssueError
     from clinic.card.payload import PayloadError
-    from clinic.card.printing import PrintError
     from clinic.card.scan import ImageReadError
     from clinic.config import ConfigError
+    from clinic.printing.errors import PrintError
     from clinic.records.validate import ValidationError
     from clinic.signing.errors import SigningError
     from clinic.store import StoreError

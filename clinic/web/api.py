@@ -75,14 +75,15 @@ def create():
     try:
         body = _body()
         rid = body.get("id")
-        rec, replay = create_record(str(body.get("kind", "")), body.get("fields") or {}, current_user(),
-                                    record_id=rid, woman_id=body.get("woman_id"),
-                                    pregnancy_id=body.get("pregnancy_id"))
+        res = create_record(str(body.get("kind", "")), body.get("fields") or {}, current_user(),
+                            record_id=rid, woman_id=body.get("woman_id"),
+                            pregnancy_id=body.get("pregnancy_id"))
     except ValidationError as e:
         return _unprocessable(e)
     except Conflict as e:
         return _conflict(e, rid)
-    if replay:
+    rec = res.record
+    if not res.created:
         return jsonify(record=rec, redirect=redirect_for(rec), replay=True), 200
     return jsonify(record=rec, redirect=redirect_for(rec)), 201
 

@@ -298,16 +298,16 @@ def add_entry(pregnancy_id, kind):
     if request.method == "POST":
         values = form_raw(kind, request.form)
         try:
-            rec, replay = create_record(kind, values, current_user(), record_id=record_id or None,
-                                        pregnancy_id=pregnancy_id)
+            res = create_record(kind, values, current_user(), record_id=record_id or None,
+                                pregnancy_id=pregnancy_id)
         except ValidationError as e:
             errors = e.errors
         except Conflict as e:
             errors = {"_form": f"{e}. This form was saved before with other values: amend the saved "
                                f"entry on the record instead."}
         else:
-            flash(f"{KINDS[kind].label} saved." if not replay else f"{KINDS[kind].label} was already saved.")
-            return redirect(redirect_for(rec))
+            flash(f"{KINDS[kind].label} saved." if res.created else f"{KINDS[kind].label} was already saved.")
+            return redirect(redirect_for(res.record))
     return render_template("entry_form.html", kind=KINDS[kind], values=values, errors=errors,
                            preg=preg, woman=woman, options=ref_options(pregnancy_id),
                            dating_text=_dating_text(preg) if "ga_days" in KINDS[kind].field_names else "",
@@ -412,14 +412,14 @@ def stock():
             abort(403, f"your role ({user.role}) may not record stock")
         values = form_raw("stock", request.form)
         try:
-            rec, replay = create_record("stock", values, user, record_id=record_id or None)
+            res = create_record("stock", values, user, record_id=record_id or None)
         except ValidationError as e:
             errors = e.errors
         except Conflict as e:
             errors = {"_form": f"{e}. This form was saved before with other values: amend the saved "
                                f"movement instead."}
         else:
-            flash("Stock movement saved." if not replay else "This movement was already saved.")
+            flash("Stock movement saved." if res.created else "This movement was already saved.")
             return redirect(url_for("records.stock"))
     moves = sorted(get_store().iter_records(kind="stock"), key=lambda r: r.get("at", ""), reverse=True)
     return render_template("stock.html", kind=KINDS["stock"], values=values, errors=errors,

@@ -107,5 +107,6 @@ def put_in_store(store, history, facility=CLINIC, by="midwife.demo"):
         fields = {k: v for k, v in rec.items() if k in KINDS[rec["kind"]].field_names}
         now = datetime.fromisoformat(rec["created_at"].replace("Z", "+00:00"))
         ids[rec["id"]] = store.create(rec["kind"], fields, by=by, facility=facility, record_id=rec["id"],
-                                      woman_id=rec.get("woman_id"), pregnancy_id=rec.get("pregnancy_id"), now=now)
+                                      woman_id=rec.get("woman_id"), pregnancy_id=rec.get("pregnancy_id"),
+                                      now=now).record
     return ids

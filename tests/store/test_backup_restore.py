@@ -29,7 +29,8 @@ def test_backup_and_restore_round_trip(data_dir, store, woman, pregnancy, now):
     assert "MANIFEST.sha256" in names and "config.toml" in names and "records/index.log" in names
 
     store.amend(woman["id"], {"village": "After Backup"}, by=USERNAME, reason="r", now=now)
-    extra = store.create("woman", {"name": "Later Person", "stated_age": 22}, by=USERNAME, facility=FACILITY_ID, now=now)
+    extra = store.create("woman", {"name": "Later Person", "stated_age": 22}, by=USERNAME, facility=FACILITY_ID,
+                         now=now).record
     result = Store.restore(data_dir, path)
     assert _tree(data_dir) == saved
     assert result["safety_backup"] is not None and result["safety_backup"].exists()

@@ -42,7 +42,7 @@ def test_two_processes_creating_in_one_partition_lose_nothing(data_dir, store, p
 
 
 def test_two_processes_amending_one_record_lose_no_amendment(data_dir, store, woman, pregnancy):
-    t = store.create("typing", TYPING, by="u", facility=FACILITY_ID, pregnancy_id=pregnancy["id"])
+    t = store.create("typing", TYPING, by="u", facility=FACILITY_ID, pregnancy_id=pregnancy["id"]).record
     _run_together(*[("amend", data_dir, t["id"], 30, tag) for tag in ("a", "b")])
     rec = store.get(t["id"])
     assert rec["version"] == 61 and len(rec["amendments"]) == 60
@@ -55,7 +55,8 @@ def test_threads_sharing_a_store_lose_nothing(store, pregnancy):
     def work(n):
         try:
             for _ in range(n):
-                rid = store.create("typing", TYPING, by="t", facility=FACILITY_ID, pregnancy_id=pregnancy["id"])["id"]
+                rid = store.create("typing", TYPING, by="t", facility=FACILITY_ID,
+                                   pregnancy_id=pregnancy["id"]).record["id"]
                 with lock:
                     ids.append(rid)
         except Exception as e:  # noqa: BLE001 - reported below

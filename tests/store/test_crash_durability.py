@@ -46,7 +46,7 @@ def test_sigkill_while_writing_loses_no_acknowledged_write(data_dir, store, preg
     assert set(acknowledged) <= {a["id"] for a in reopened.audit()}
     # The store still takes writes after the crashes.
     rec = reopened.create("typing", {"abo": "O", "rhd": "negative", "tested_on": "2026-03-02"},
-                          by="after-crash", facility="test-clinic", pregnancy_id=pregnancy["id"])
+                          by="after-crash", facility="test-clinic", pregnancy_id=pregnancy["id"]).record
     assert Store(data_dir).get(rec["id"]) is not None
 
 

@@ -11,7 +11,7 @@ def _stat(p):
 
 def _book(store, woman, booked_on, now):
     return store.create("pregnancy", {"booked_on": booked_on, "lmp": "2025-10-01", "status": "ongoing"},
-                        by=USERNAME, facility=FACILITY_ID, woman_id=woman["id"], now=now)
+                        by=USERNAME, facility=FACILITY_ID, woman_id=woman["id"], now=now).record
 
 
 def test_pregnancy_and_its_entries_live_in_the_booking_month_file(store, data_dir, woman, now):

@@ -28,11 +28,11 @@ def make_pregnancy(live, name: str, weeks: int = 26) -> dict:
     store = live.store
     today = local_today(live).date()
     w = store.create("woman", {"name": name, "stated_age": 29, "village": "Testville"}, by="midwife",
-                     facility=s.facility_id)
+                     facility=s.facility_id).record
     p = store.create("pregnancy", {"booked_on": (today - timedelta(weeks=weeks - 12)).isoformat(),
                                    "lmp": (today - timedelta(weeks=weeks)).isoformat(), "status": "ongoing",
                                    "gravidity": 2, "parity": 1},
-                     by="midwife", facility=s.facility_id, woman_id=w["id"])
+                     by="midwife", facility=s.facility_id, woman_id=w["id"]).record
     store.create("typing", {"abo": "A", "rhd": "negative", "tested_on": (today - timedelta(weeks=weeks - 12)).isoformat()},
                  by="midwife", facility=s.facility_id, woman_id=w["id"], pregnancy_id=p["id"])
     return p
@@ -182,7 +182,7 @@ def test_a_record_amended_on_the_laptop_meanwhile_is_a_conflict_not_overwritten(
     s = live.app.extensions["rhledger"]["settings"]
     rec = live.store.create("screen", {"sampled_at": (datetime.now(s.tz) - timedelta(days=2)).strftime("%Y-%m-%dT%H:%M"),
                                        "result": "negative", "lab": "First lab"},
-                            by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"])
+                            by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"]).record
     sign_in(page, live)
     page.goto(f"/records/{rec['id']}/amend")
     wait_for_worker(page)
@@ -265,7 +265,7 @@ def test_an_amendment_made_online_is_saved_at_once(page, live):
     s = live.app.extensions["rhledger"]["settings"]
     rec = live.store.create("screen", {"sampled_at": (datetime.now(s.tz) - timedelta(days=1)).strftime("%Y-%m-%dT%H:%M"),
                                        "result": "negative", "lab": "Old lab"},
-                            by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"])
+                            by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"]).record
     sign_in(page, live)
     page.goto(f"/records/{rec['id']}/amend")
     page.fill('[name="lab"]', "District lab")

@@ -115,7 +115,7 @@ def test_dose_form_defaults_to_the_stocked_product_and_the_proposed_dose(client,
 def test_dose_form_links_the_event_it_covers(client, booked, store):
     pid = booked["pregnancy"]["id"]
     ev = store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": _local_hour_ago()},
-                      by="mwangi", facility="test-clinic", pregnancy_id=pid)
+                      by="mwangi", facility="test-clinic", pregnancy_id=pid).record
     html = client.get(f"/pregnancies/{pid}/add/dose?covers={ev['id']}").get_data(as_text=True)
     assert f'<option value="{ev["id"]}" selected>Event · abdominal-trauma' in html
 

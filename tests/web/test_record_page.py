@@ -30,7 +30,7 @@ def test_record_page_links_a_form_for_every_entry_kind(client, booked):
 def test_due_dose_has_a_record_this_dose_link_with_defaults(client, store, booked):
     pid = booked["pregnancy"]["id"]
     ev = store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": at_ago(hours=1)},
-                      by="mwangi", facility="test-clinic", pregnancy_id=pid)
+                      by="mwangi", facility="test-clinic", pregnancy_id=pid).record
     html = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
     m = re.search(r'href="(/pregnancies/[^"]+/add/dose\?[^"]+)">Record this dose', html)
     assert m

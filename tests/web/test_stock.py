@@ -9,7 +9,7 @@ from tests.web.conftest import at_ago
 def _move(store, move, vials, lot="LOT-A", expiry="2030-06-30", hours=5):
     return store.create("stock", {"move": move, "at": at_ago(hours=hours), "product": "Anti-D 1500",
                                   "vial_iu": 1500, "lot": lot, "lot_expiry": expiry, "vials": vials},
-                        by="mwangi", facility="test-clinic")
+                        by="mwangi", facility="test-clinic").record
 
 
 def test_stock_page_shows_on_hand_by_lot(client, store):
@@ -76,7 +76,7 @@ def test_a_dose_links_to_taking_its_vials_off_the_stock(client, store, booked):
     dose = store.create("dose", {"given_at": at_ago(hours=2), "amount": 1500, "unit": "IU", "route": "IM",
                                  "product": "Anti-D 1500", "lot": "L-9", "lot_expiry": "2030-01-01",
                                  "indication": "routine-antenatal", "given_by": "Midwife Test"},
-                        by="mwangi", facility="test-clinic", pregnancy_id=pid)
+                        by="mwangi", facility="test-clinic", pregnancy_id=pid).record
     page = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
     m = re.search(r'href="(/stock\?[^"]+)">Take the vials off the stock', page)
     assert m
