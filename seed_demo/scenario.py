@@ -647,4 +647,7 @@ def _district_notes(summary: dict) -> list[str]:
     for b in summary.get("bundles", []):
         notes.append(f"Bundle to import: {b['file']} ({b['records']} records from {b['facility_id']})")
     notes.append("Import them all (district page, Import) to see last month's coverage report and follow-up list")
+    a, b = SITE_DEFS["clinic-a"], SITE_DEFS["clinic-b"]
+    notes.append(f"Then Supply: {b.name} runs out of 1500 IU vials within weeks; {a.name}'s lot "
+                 f"{a.lots['short-dated'].lot} would expire unused, and the suggested transfer to {b.name} saves it")
     return notes

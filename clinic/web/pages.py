@@ -15,6 +15,7 @@ NAV = (
     ("Book", "records.booking", "book"),
     ("Calculators", "tools.calculators", "calc"),
     ("Stock", "records.stock", "stock"),
+    ("Supply", "supply.index", "supply"),
     ("Cards", "card.index", "card"),
     ("District", "district.index", "district"),
 )
