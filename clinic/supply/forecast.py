@@ -33,14 +33,15 @@ from datetime import date, datetime, timedelta, timezone, tzinfo
 from typing import Any, Iterable, Sequence
 
 from clinic.care.calc import vials_for
+from clinic.care.codes import Category, ItemCode, parse_item_code
 from clinic.supply.errors import SupplyInputError
 from clinic.supply.poisson import poisson_quantile
 
 # Plan item vocabulary of the care engine read here (DEVELOPERS.md, "Care engine").
-CODE_POSTPARTUM_DOSE = "postpartum-dose"
-EVENT_DOSE_PREFIX = "event-dose:"
-CAT_ROUTINE, CAT_EVENT, CAT_POSTPARTUM = "routine", "event", "postpartum"
-OPEN_STATES = ("due", "overdue")
+CODE_POSTPARTUM_DOSE = ItemCode.POSTPARTUM_DOSE
+CAT_ROUTINE, CAT_EVENT, CAT_POSTPARTUM = Category.ROUTINE, Category.EVENT, Category.POSTPARTUM
+# Items whose dose is wanted now (counted on day 0); not-yet-due ones count when their window opens.
+OPEN_NOW_STATES = ("due", "overdue")
 # Pregnancies whose care has moved elsewhere: their doses are not this facility's demand.
 GONE_STATUSES = ("transferred", "lost-to-follow-up")
 # A pregnancy 14 days past its EDD (42+0) with no birth recorded is most likely a birth not
@@ -145,7 +146,7 @@ def needs_of_plan(plan: Any, *, pregnancy: dict, start: date, days: int, tz: tzi
             continue
         code, cat = _a(it, "code") or "", _a(it, "category") or ""
         weight, when = 1.0, None
-        if state in OPEN_STATES:
+        if state in OPEN_NOW_STATES:
             day = 0
         elif state == "not-yet-due" and _a(it, "opens") is not None:
             when = _aware(_a(it, "opens"))
@@ -181,10 +182,10 @@ def event_rate(plans_with_events: Iterable[tuple[Any, dict[str, str]]], *, facil
     doses = []
     for plan, where in plans_with_events:
         for it in _a(plan, "items", []) or []:
-            code = _a(it, "code") or ""
-            if not code.startswith(EVENT_DOSE_PREFIX) or _a(it, "state") == "not-needed":
+            base, event_id = parse_item_code(_a(it, "code") or "")
+            if base != ItemCode.EVENT_DOSE or _a(it, "state") == "not-needed":
                 continue
-            if where.get(_a(it, "related_id") or code[len(EVENT_DOSE_PREFIX):]) != facility:
+            if where.get(_a(it, "related_id") or event_id) != facility:
                 continue
             t = _aware(_a(it, "due"))
             dose = _a(it, "dose_iu")
