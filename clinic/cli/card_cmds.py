@@ -14,7 +14,7 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data, write_file
 
 # Exit status of read-card by trust state.
 EXIT_BY_TRUST = {"trusted": 0, "unknown-issuer": 0, "altered": 2, "unreadable": 3}
@@ -100,13 +100,13 @@ def card_cmd(pregnancy, out, png, sheet, referral, payload, as_json, dpi, data):
     ic = issue_card(d, store, settings, pid)
     written = []
     if out:
-        out.write_bytes(printing.card_pdf(ic.view))
+        write_file(out, printing.card_pdf(ic.view))
         written.append(str(out))
     if png:
-        png.write_bytes(printing.card_png(ic.view, dpi=dpi))
+        write_file(png, printing.card_png(ic.view, dpi=dpi))
         written.append(str(png))
     if sheet:
-        sheet.write_bytes(printing.sheet_pdf([ic.view] * 4))
+        write_file(sheet, printing.sheet_pdf([ic.view] * 4))
         written.append(str(sheet))
     if referral:
         _, _, entries = store.history(pid)
@@ -117,7 +117,7 @@ def card_cmd(pregnancy, out, png, sheet, referral, payload, as_json, dpi, data):
                  "question asked) first, then print the note")
         r = refs[-1]
         from clinic.card.view import show_date
-        referral.write_bytes(printing.referral_pdf(ic.view, {"to": r["to_facility"], "reason": r["reason"],
+        write_file(referral, printing.referral_pdf(ic.view, {"to": r["to_facility"], "reason": r["reason"],
                                                              "question": r.get("question", ""),
                                                              "date": show_date(r["referred_on"])}))
         written.append(str(referral))
@@ -307,7 +307,7 @@ def trust_build(facilities_file, out, seq, data):
     if not any(isinstance(e, dict) and e.get("facility_id") == me.facility_id for e in entries):
         entries.append(me)
     blob = build_trust_list(entries, load_signing_key(d), district_name=settings.facility_name, seq=seq)
-    out.write_bytes(blob)
+    write_file(out, blob)
     tl, _, key = read_trust_file(blob)
     click.echo(f"Wrote {out}: {len(tl.entries)} facilities, list number {tl.seq}")
     click.echo(f"District key fingerprint (installations confirm it on first import): {key.fingerprint}")

@@ -27,6 +27,14 @@ def emit_json(obj) -> None:
     click.echo(json.dumps(obj, indent=2, ensure_ascii=False, default=str))
 
 
+def write_file(path: Path, data: bytes) -> None:
+    """Write an output file (card, report, trust list) so that a power cut or a full disk midway
+    leaves the old file or none, never half of one under the name asked for."""
+    from clinic.signing.files import atomic_write
+
+    atomic_write(Path(path), data, 0o644)
+
+
 def fail(message: str, code: int = 1) -> None:
     """Print a clean error and exit non-zero."""
     click.echo(f"Error: {message}", err=True)

@@ -9,7 +9,7 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data, write_file
 from clinic.config import ConfigError
 from clinic.printing.errors import PrintError
 from clinic.records.validate import ValidationError
@@ -125,8 +125,7 @@ def report_cmd(data, month, fmt, out, months, as_of):
     m = Month.parse(month)
     store = _store(data_dir)
     content = outputs.render(store, data_dir, m, fmt, now=_now(as_of), months=months)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    out.write_bytes(content if isinstance(content, bytes) else content.encode("utf-8"))
+    write_file(out, content if isinstance(content, bytes) else content.encode("utf-8"))
     click.echo(f"Wrote {out} ({fmt}, {m.title}).")
 
 

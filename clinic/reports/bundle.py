@@ -36,6 +36,7 @@ import cbor2
 from clinic.records.schema import KINDS, SCHEMA_VERSION
 from clinic.records.validate import ValidationError, validate_record
 from clinic.records.values import parse_utc, utc_text
+from clinic.signing.files import atomic_write
 from clinic.store.errors import Conflict, StoreError
 
 MAGIC = b"RHLB"
@@ -370,10 +371,7 @@ def export_bundle(store, data_dir: Path, *, facility: str, out: Path | None = No
     if out is None:
         out = data_dir / EXPORTS_DIR / f"{facility}-{now.strftime('%Y%m%dT%H%M%SZ')}{EXTENSION}"
     out = Path(out)
-    out.parent.mkdir(parents=True, exist_ok=True)
-    tmp = out.with_name(out.name + ".tmp")
-    tmp.write_bytes(data)
-    os.replace(tmp, out)
+    atomic_write(out, data, 0o644)   # fsync'd before the rename: a power cut leaves no half bundle
     sha = hashlib.sha256(data).hexdigest()
     if use_ledger:
         ledger.update(hashes)

@@ -28,3 +28,15 @@ class BackupInvalid(StoreError):
 
 class StoreBusy(StoreError):
     """Another process held the store lock for longer than the timeout."""
+
+
+class StoreUnwritable(StoreError):
+    """The data folder could not be written (the disk is full, or the folder is read-only):
+    nothing of the write was acknowledged, and the store is as it was before it.
+
+    ``reason`` is "disk-full", "read-only" or "io-error"; ``path`` the file that failed."""
+
+    def __init__(self, message: str, reason: str, path: str | None = None):
+        super().__init__(message)
+        self.reason = reason
+        self.path = path

@@ -39,6 +39,7 @@ from clinic.store.storage import (
     ensure_dir,
     file_key,
 )
+from clinic.store.unwritable import translated
 
 # (the local copy or None, the incoming record) -> (outcome, the audit entry when it is to be stored)
 Decide = Callable[[dict | None, dict], tuple[str, dict | None]]
@@ -96,7 +97,7 @@ class Writer:
     @contextmanager
     def _locked(self):
         """The thread lock, then (once per thread nesting) the cross-process file lock."""
-        with self._tlock:
+        with self._tlock, translated(self.data_dir):  # a full disk or a read-only folder: StoreUnwritable
             if self._depth == 0:
                 try:
                     self._flock.acquire(timeout=self.lock_timeout)

@@ -56,7 +56,9 @@ def create_app(data_dir=None, test_config=None) -> Flask:
         app.config["SECRET_KEY"] = _secret_key(data)
     store = Store(data, settings)
     app.extensions["rhledger"] = {"settings": settings, "store": store}
-    store.daily_backup_if_due()
+    from clinic.web.housekeeping import backup_once
+
+    backup_once(store)  # a full disk must not keep the records from being read: reported, retried hourly
 
     from clinic.web import api, auth, db, helpers, pages, records_views, stock, tools_views
 

@@ -15,7 +15,7 @@ from clinic.records.validate import ValidationError
 from clinic.records.values import utc_text
 from clinic.web import calcs, worklist
 from clinic.web.auth import WRITE_ROLES, csrf_token, current_user, role_required
-from clinic.web.db import get_settings, get_store, plan_for
+from clinic.web.db import get_settings, get_store, plan_for, utcnow
 from clinic.web.saving import Duplicates, create_record, redirect_for, save_booking
 
 bp = Blueprint("api", __name__, url_prefix="/api/v1")
@@ -62,9 +62,11 @@ def _conflict(e, record_id=None):
 def session_info():
     u = current_user()
     s = get_settings()
+    from clinic.web.pages import clock_warning
+
     return jsonify(user={"username": u.username, "display_name": u.display_name, "role": u.role},
                    csrf_token=csrf_token(), facility={"id": s.facility_id, "name": s.facility_name,
-                                                      "timezone": s.timezone})
+                                                      "timezone": s.timezone}, clock_warning=clock_warning())
 
 
 @bp.post("/records")
@@ -150,10 +152,10 @@ def amend(record_id):
             raise Conflict(f"the record was amended meanwhile (now version {rec.get('version')}, "
                            f"you changed version {ev}); reload it and apply your change again")
         if changes == {"voided": True}:
-            out = store.void(record_id, by=current_user().username, reason=reason)
+            out = store.void(record_id, by=current_user().username, reason=reason, now=utcnow())
         else:
             out = store.amend(record_id, changes, by=current_user().username, reason=reason,
-                              expected_version=ev)
+                              expected_version=ev, now=utcnow())
     except ValidationError as e:
         return _unprocessable(e)
     except Conflict as e:

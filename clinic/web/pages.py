@@ -36,9 +36,17 @@ def nav_links():
     return out
 
 
+def clock_warning() -> str | None:
+    """Said on every page while the laptop's clock is behind what the store already saved."""
+    from clinic.store.clock import clock_warning as behind
+    from clinic.web.db import get_data_dir, utcnow
+
+    return behind(get_data_dir(), utcnow())
+
+
 @bp.app_context_processor
 def _inject():
-    return {"settings": get_settings(), "nav_links": nav_links}
+    return {"settings": get_settings(), "nav_links": nav_links, "clock_warning": clock_warning}
 
 
 @bp.route("/")
@@ -109,7 +117,20 @@ def _server_error(e):
         "trying again, and tell whoever looks after this installation."))
 
 
+def _unwritable(e):
+    """Disk full or data folder read-only: said plainly; nothing of the request was saved."""
+    from werkzeug.exceptions import HTTPException
+
+    current_app.logger.error("write refused: %s", e)
+    refusal = HTTPException(str(e))
+    refusal.code = 507 if e.reason == "disk-full" else 503
+    return _error_page(refusal)
+
+
 def register_errors(app):
+    from clinic.store import StoreUnwritable
+
     for code in (400, 403, 404, 405, 409, 413):
         app.register_error_handler(code, _error_page)
+    app.register_error_handler(StoreUnwritable, _unwritable)
     app.register_error_handler(500, _server_error)

@@ -349,7 +349,7 @@ def amend(record_id):
         if not errors and not conflict:
             try:
                 out = get_store().amend(record_id, changes, by=current_user().username, reason=reason,
-                                        expected_version=ev)
+                                        expected_version=ev, now=utcnow())
             except ValidationError as e:
                 errors = e.errors
             except Conflict as e:
@@ -400,7 +400,7 @@ def void(record_id):
         if not reason:
             errors["reason"] = "is required: say why this entry should not count"
         else:
-            out = get_store().void(record_id, by=current_user().username, reason=reason)
+            out = get_store().void(record_id, by=current_user().username, reason=reason, now=utcnow())
             flash("Entry voided; it stays on record, struck through.")
             return redirect(redirect_for(out))
     return render_template("void.html", rec=rec, kind=KINDS[rec["kind"]], errors=errors), (422 if errors else 200)
