@@ -25,7 +25,15 @@ def percentile(values: list[float], q: float) -> float:
 
 
 def peak_rss_mib() -> float:
-    """Peak resident memory of this process so far (Linux reports KiB)."""
+    """Peak resident memory of this process so far: VmHWM, the high-water mark of this program's
+    own memory. (ru_maxrss is no good here: Linux carries into it the size of the parent process
+    that forked this one before it ran the new program.)"""
+    try:
+        for line in Path("/proc/self/status").read_text().splitlines():
+            if line.startswith("VmHWM:"):
+                return int(line.split()[1]) / 1024
+    except OSError:
+        pass
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
 
 

@@ -8,11 +8,13 @@ is as full as a real clinic's), then:
   (what a midwife saves), timed one by one; each is durable (fsync'd) before it returns;
 * **sqlite**: the same record (same JSON) into a SQLite copy of the same records (Python's
   sqlite3, WAL, synchronous=FULL): look the pregnancy up, insert the record and its audit row,
-  one commit per entry. The two writes alternate, so both see the same moments of a busy
-  machine: compare them within one run;
+  one commit per entry. Every size is built first, then the writes go in rounds: one at each
+  size in turn, store then SQLite, so that all of them see the same moments of a busy machine
+  (compare them within one run);
 * **open**: ``Store(data_dir)`` in a fresh process, after the store's files were dropped from
-  the page cache (cold; three times, the median kept) and once straight after (warm); its time
-  and the process's peak memory (the largest of the three);
+  the page cache (cold; three times, the median kept, after a first open that writes the
+  store's own caches) and once straight after (warm); its time and the process's peak memory
+  (the largest of the three);
 * **disk**: bytes of ``records/`` and ``audit/`` (and of the SQLite file) per pregnancy.
 """
 from __future__ import annotations
@@ -96,9 +98,10 @@ def sqlite_entry(db: sqlite3.Connection, record: dict) -> None:
     db.execute("COMMIT")
 
 
-# ---- one size ----------------------------------------------------------------------------------
+# ---- the sizes ----------------------------------------------------------------------------------
 
-def measure_size(root: Path, size: int, sample: int, now: datetime, log) -> dict:
+def prepare_size(root: Path, size: int, now: datetime, log) -> dict:
+    """Build the store of one size, measure its opens and bytes, and make its SQLite copy."""
     from clinic.store import Store
     from seed_demo.synthetic import build_synthetic
 
@@ -114,7 +117,7 @@ def measure_size(root: Path, size: int, sample: int, now: datetime, log) -> dict
     out["disk_bytes"] = store_bytes
     out["bytes_per_pregnancy"] = round(store_bytes / pregnancies)
     out["index_bytes"] = (d / "records" / "index.log").stat().st_size
-
+    run_phase("part_store", "open", {"dir": str(d)})  # the first open after the build writes its caches
     colds = []
     for _ in range(OPENS):
         drop_page_cache(d)
@@ -124,49 +127,57 @@ def measure_size(root: Path, size: int, sample: int, now: datetime, log) -> dict
     out.update(open_cold_s=cold["seconds"], open_peak_mib=max(r["peak_mib"] for r in colds),
                open_rss_after_import_mib=cold["rss_after_import_mib"], open_warm_s=warm["seconds"],
                open_cold_all_s=[round(r["seconds"], 3) for r in colds])
-
     store = Store(d)
     db = sqlite_copy(store, root / f"sqlite-{size}.db")
-    newest = [p for p in store.pregnancies()][-max(2 * sample, 50):]
-    rng = random.Random(size)
-    store_ms, sqlite_ms = [], []
-    at = now
-    for i in range(sample + WARMUP):
-        preg = rng.choice(newest)
-        at = at + timedelta(seconds=1)
-        t = time.perf_counter()
-        created = store.create("screen", {"sampled_at": (at - timedelta(minutes=30)).strftime("%Y-%m-%dT%H:%M:%SZ"),
-                                          "result": "negative"}, by="bench", facility=preg["facility"],
-                               woman_id=preg["woman_id"], pregnancy_id=preg["id"], now=at)
-        a = time.perf_counter() - t
-        twin = dict(created.record, id=f"sqlite-{i}-{created.record['id']}")
-        t = time.perf_counter()
-        sqlite_entry(db, twin)
-        b = time.perf_counter() - t
-        if i >= WARMUP:
-            store_ms.append(1000 * a)
-            sqlite_ms.append(1000 * b)
-    db.close()
-    sq = root / f"sqlite-{size}.db"
-    sqlite_bytes = disk_bytes(sq) + sum(disk_bytes(p) for p in sq.parent.glob(sq.name + "-*"))
-    out.update(entry_p50_ms=percentile(store_ms, 50), entry_p95_ms=percentile(store_ms, 95),
-               sqlite_p50_ms=percentile(sqlite_ms, 50), sqlite_p95_ms=percentile(sqlite_ms, 95),
-               entries_timed=len(store_ms), sqlite_bytes_per_pregnancy=round(sqlite_bytes / pregnancies))
-    out["ratio_to_sqlite"] = out["entry_p95_ms"] / out["sqlite_p95_ms"]
-    log(f"  store {pregnancies:,}: entry p50 {out['entry_p50_ms']:.1f} ms p95 {out['entry_p95_ms']:.1f} ms; "
-        f"sqlite p95 {out['sqlite_p95_ms']:.1f} ms; open cold {out['open_cold_s']:.2f} s, "
-        f"peak {out['open_peak_mib']:.0f} MiB; {out['bytes_per_pregnancy']:,} B a pregnancy")
+    out["_live"] = (store, db, store.pregnancies()[-50:], random.Random(size))
+    log(f"  store {pregnancies:,}: open cold {out['open_cold_s']:.2f} s, peak {out['open_peak_mib']:.0f} MiB; "
+        f"{out['bytes_per_pregnancy']:,} B a pregnancy")
     return out
 
 
+def _entry(store, db, preg: dict, at: datetime, n: int) -> tuple[float, float]:
+    """One screen saved in the store, then the same record in SQLite: (store s, SQLite s)."""
+    t = time.perf_counter()
+    created = store.create("screen", {"sampled_at": (at - timedelta(minutes=30)).strftime("%Y-%m-%dT%H:%M:%SZ"),
+                                      "result": "negative"}, by="bench", facility=preg["facility"],
+                           woman_id=preg["woman_id"], pregnancy_id=preg["id"], now=at)
+    a = time.perf_counter() - t
+    twin = dict(created.record, id=f"sqlite-{n}-{created.record['id']}")
+    t = time.perf_counter()
+    sqlite_entry(db, twin)
+    return a, time.perf_counter() - t
+
+
 def run(root: Path, sizes: list[int], sample: int, log, keep: bool = False) -> dict:
+    """Every size built first; then the entries are timed in rounds, one at each size in turn
+    (store, then SQLite), so that every size and SQLite see the same moments of the machine."""
     now = datetime.now(timezone.utc).replace(microsecond=0)
-    by_size = {}
-    for size in sizes:
-        by_size[str(size)] = measure_size(root, size, sample, now, log)
+    by_size = {str(size): prepare_size(root, size, now, log) for size in sizes}
+    times: dict[str, tuple[list[float], list[float]]] = {k: ([], []) for k in by_size}
+    at = now
+    for i in range(sample + WARMUP):
+        for k, row in by_size.items():
+            store, db, newest, rng = row["_live"]
+            at = at + timedelta(seconds=1)
+            a, b = _entry(store, db, rng.choice(newest), at, i)
+            if i >= WARMUP:
+                times[k][0].append(1000 * a)
+                times[k][1].append(1000 * b)
+    for k, row in by_size.items():
+        store, db, _, _ = row.pop("_live")
+        db.close()
+        sq = root / f"sqlite-{k}.db"
+        sqlite_bytes = disk_bytes(sq) + sum(disk_bytes(p) for p in sq.parent.glob(sq.name + "-*"))
+        store_ms, sqlite_ms = times[k]
+        row.update(entry_p50_ms=percentile(store_ms, 50), entry_p95_ms=percentile(store_ms, 95),
+                   sqlite_p50_ms=percentile(sqlite_ms, 50), sqlite_p95_ms=percentile(sqlite_ms, 95),
+                   entries_timed=len(store_ms), sqlite_bytes_per_pregnancy=round(sqlite_bytes / row["pregnancies"]))
+        row["ratio_to_sqlite"] = row["entry_p95_ms"] / row["sqlite_p95_ms"]
+        log(f"  store {row['pregnancies']:,}: entry p50 {row['entry_p50_ms']:.1f} ms p95 {row['entry_p95_ms']:.1f} ms; "
+            f"SQLite p95 {row['sqlite_p95_ms']:.1f} ms")
         if not keep:
-            shutil.rmtree(root / f"store-{size}", ignore_errors=True)
-            for p in root.glob(f"sqlite-{size}.db*"):
+            shutil.rmtree(root / f"store-{k}", ignore_errors=True)
+            for p in root.glob(f"sqlite-{k}.db*"):
                 p.unlink()
     first, last = by_size[str(sizes[0])], by_size[str(sizes[-1])]
     return {

@@ -94,7 +94,8 @@ def run_parts(parts: list[str], cfg: dict, root: Path, keep: bool) -> dict:
 
 
 def lookup(figures: dict, key: str):
-    """A figure by dotted key; ``.district`` means the largest store size measured."""
+    """A figure by dotted key; ``.district`` means the largest store size measured, and a figure
+    given per store size counts by its worst size."""
     node = figures
     parts = key.split(".")
     for i, k in enumerate(parts):
@@ -104,6 +105,8 @@ def lookup(figures: dict, key: str):
             sizes = [int(s) for s in node]
             return node[str(max(sizes))] if sizes else None
         node = node.get(k)
+    if isinstance(node, dict) and node and all(isinstance(v, (int, float)) for v in node.values()):
+        return max(node.values())
     return node
 
 
@@ -135,7 +138,9 @@ def table(figures: dict) -> list[str]:
             di["import_s"], "s", "<= 10")
         row(f"district report, {di['bookings']:,} bookings, 12-month trend", di["report_s"], "s", "<= 5")
         if di.get("report_again_s") is not None:
-            row("district report again (same records, later)", di["report_again_s"], "s")
+            row("district report again an hour later (same process)", di["report_again_s"], "s", "<= 5")
+        if di.get("report_next_day_s") is not None:
+            row("district report the next day (same process)", di["report_next_day_s"], "s", "<= 5")
     ca = figures.get("card")
     if ca:
         row("card PDF (largest demo history)", ca["pdf_s"], "s", "<= 1")

@@ -123,8 +123,8 @@ def compute_month(cases: list[Case], month: Month, tz: tzinfo, *, now: datetime,
     for case in cases:
         if month not in case.months(tz):
             continue
-        for ind in INDICATORS:
-            for hit in ind.fn(case, month, tz):
+        for ind, hits in case.hits(month, tz, INDICATORS):
+            for hit in hits:
                 members.add(case.id)
                 for f in (case.facility, DISTRICT):
                     c = cells[(f, ind.id)]

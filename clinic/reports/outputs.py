@@ -6,6 +6,7 @@ from datetime import datetime
 from pathlib import Path
 
 from clinic.reports.bundle import facility_care
+from clinic.reports.case_cache import cache_for
 from clinic.reports.cases import FullReport, facility_names_from_trust, load_inputs
 from clinic.reports.coverage import compute_month, compute_trend
 from clinic.reports.month import Month
@@ -33,7 +34,8 @@ class Prepared:
 def prepare(store, data_dir: Path, month: Month, *, now: datetime, months: int = 12) -> Prepared:
     settings = store.settings
     inp = load_inputs(store, settings, now=now, first_month=month.shift(-(months - 1)),
-                      facility_care=facility_care(data_dir), facility_names=facility_names_from_trust(data_dir))
+                      facility_care=facility_care(data_dir), facility_names=facility_names_from_trust(data_dir),
+                      cache=cache_for(store))
     tz = settings.tz
     rep = compute_month(inp.cases, month, tz, now=now, stock_records=inp.stock, facilities=inp.facilities,
                         facility_names=inp.facility_names, profile=inp.profile_label, profiles=inp.profiles)

@@ -63,6 +63,9 @@ class Case:
         for e in self.entries:
             self._by_kind[e.get("kind", "")].append(e)
         self._months: dict = {}
+        # What the indicators found in a month, by (month, zone): a function of the records and
+        # the plan's items alone, so copies of the case with the plan's ``now`` moved on share it.
+        self._hits: dict = {}
 
     def months(self, tz: tzinfo) -> frozenset:
         """Every month this pregnancy can count in: the months of its booking, of each item's
@@ -82,6 +85,20 @@ class Case:
                         out.add(Month.of(parse_utc(e[k]), tz))
             self._months[key] = frozenset(out)
         return self._months[key]
+
+    def hits(self, month: Month, tz: tzinfo, indicators) -> tuple:
+        """((indicator, (Hit, ...)), ...) of the ``indicators`` with a hit for this case in ``month``
+        (worked out once; kept small: a district holds a hundred thousand cases)."""
+        key = (month, str(tz), tuple(ind.id for ind in indicators))
+        got = self._hits.get(key)
+        if got is None:
+            found = []
+            for ind in indicators:
+                hits = tuple(ind.fn(self, month, tz))
+                if hits:
+                    found.append((ind, hits))
+            got = self._hits[key] = tuple(found) if found else ()
+        return got
 
     @property
     def id(self) -> str:

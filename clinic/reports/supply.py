@@ -12,6 +12,7 @@ from datetime import date, datetime, timedelta
 from pathlib import Path
 
 from clinic.reports.bundle import facility_care
+from clinic.reports.case_cache import cache_for
 from clinic.reports.cases import facility_names_from_trust, load_inputs
 from clinic.reports.month import Month
 from clinic.reports.stock import balances
@@ -39,7 +40,8 @@ def supply_report(store, data_dir: Path, *, now: datetime, weeks: int | None = N
     names = facility_names_from_trust(data_dir)
     # The event rate looks back a year: every pregnancy that can count since then is planned.
     first = Month.of(now - timedelta(days=EVENT_LOOKBACK_DAYS + 1), tz)
-    inp = load_inputs(store, settings, now=now, first_month=first, facility_care=care, facility_names=names)
+    inp = load_inputs(store, settings, now=now, first_month=first, facility_care=care, facility_names=names,
+                      cache=cache_for(store))
     own = settings.facility_id
     stock_by: dict[str, list[dict]] = defaultdict(list)
     for r in inp.stock:

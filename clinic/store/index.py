@@ -11,6 +11,7 @@ import os
 from pathlib import Path
 from typing import NamedTuple
 
+from clinic.store import index_snapshot
 from clinic.store.storage import append_line, append_lines, gc_paused
 
 
@@ -43,6 +44,7 @@ class IndexLog:
         self.children: dict[str, list[str]] = {}  # pregnancy id -> entry ids
         self.pregnancies_of: dict[str, list[str]] = {}  # woman id -> pregnancy ids
         self._strings: dict[str, str] = {}  # one copy of each partition, kind and parent id
+        self._snapshot_offset = 0  # where the newest snapshot (index_snapshot) ends
 
     def refresh(self) -> None:
         """Read what other processes appended since the last call."""
@@ -57,6 +59,7 @@ class IndexLog:
             if st.st_ino != self._inode or st.st_size < self._offset:
                 self._reset()  # replaced (restore) or cut: read it again from the start
                 self._inode = st.st_ino
+                index_snapshot.load(self, fh, st)  # or from a snapshot of it that still matches
             if st.st_size == self._offset:
                 return
             fh.seek(self._offset)
@@ -77,6 +80,7 @@ class IndexLog:
                     self._offset += end + 1
                     carry = block[end + 1:]
         # A torn last line (no newline yet) stays unread until it is completed or trimmed.
+        index_snapshot.save_if_due(self)
 
     def _add_lines(self, lines: list[str], offset: int) -> None:
         locs, order, strings = self.locs, self.order, self._strings

@@ -18,8 +18,9 @@ from clinic.records.values import utc_text
 from clinic.store import migrate
 from clinic.store.audit import audit_entry
 from clinic.store.errors import Conflict, NotFound
+from clinic.store.layout import partition_files
 from clinic.store.search import name_score, normalise_name, phone_digits, phones_match, search
-from clinic.store.storage import TABLE
+from clinic.store.storage import TABLE, file_key
 from clinic.store.writer import Writer, copy_record
 
 
@@ -254,6 +255,25 @@ class RecordsAPI(Writer):
                 with self._locked():  # settles an interrupted write (or waits for one in progress)
                     pass
             return self._audit.entries(record_id, since)
+
+    def partition_keys(self) -> dict[str, tuple[int, int, int]]:
+        """Every partition file (``<facility>/<name>``) with its key (inode, mtime_ns, size). A
+        partition whose key is unchanged holds the same records: every write replaces the file."""
+        out = {}
+        for p in partition_files(self.records_dir):
+            try:
+                out[p.relative_to(self.records_dir).with_suffix("").as_posix()] = file_key(p.stat())
+            except FileNotFoundError:
+                continue
+        return out
+
+    def partition_records(self, partition: str) -> tuple[tuple[int, int, int] | None, list[dict]]:
+        """(key, records) of one partition, read together: the records are those of that file version.
+        Hand-outs are the caller's (copies when the read cache holds them)."""
+        with self._tlock:
+            key, data, fresh = self._pcache.scan_keyed(self._ppath(partition))
+        docs = [d for d in (data or {}).get(TABLE, {}).values() if isinstance(d, dict) and "id" in d]
+        return key, (docs if fresh else [copy_record(d) for d in docs])
 
     def iter_records(self, kind: str | None = None, since: str | None = None,
                      facility: str | None = None) -> Iterator[dict]:

@@ -179,19 +179,24 @@ class PartitionCache:
         """(content, fresh) for a one-pass read of many partitions: a cached copy when current
         (fresh False: shared, copy before handing out), else parsed and NOT cached (fresh True:
         nobody else holds it), so a full scan neither evicts the working set nor copies."""
+        _, data, fresh = self.scan_keyed(path)
+        return data, fresh
+
+    def scan_keyed(self, path: Path) -> tuple[tuple[int, int, int] | None, dict | None, bool]:
+        """``scan`` and the key of the very file version it read: (key, content, fresh)."""
         path = Path(path)
         try:
             fh = open(path, "rb")
         except FileNotFoundError:
-            return None, True
+            return None, None, True
         with fh:
             key = file_key(os.fstat(fh.fileno()))
             with self._lock:
                 hit = self._items.get(path)
                 if hit is not None and hit[0] == key:
-                    return hit[1], False
+                    return key, hit[1], False
             raw = fh.read()
-        return self._parse(path, raw), True
+        return key, self._parse(path, raw), True
 
     def load(self, path: Path) -> dict | None:
         """The parsed content of ``path`` (None when it does not exist)."""

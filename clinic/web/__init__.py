@@ -55,7 +55,10 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     if not app.config.get("SECRET_KEY"):
         app.config["SECRET_KEY"] = _secret_key(data)
     store = Store(data, settings)
-    app.extensions["rhledger"] = {"settings": settings, "store": store}
+    from clinic.reports.case_cache import CaseCache
+    from clinic.reports.plan_cache import PlanCache
+
+    app.extensions["rhledger"] = {"settings": settings, "store": store, "plans": PlanCache(), "cases": CaseCache()}
     from clinic.web.housekeeping import backup_once
 
     backup_once(store)  # a full disk must not keep the records from being read: reported, retried hourly

@@ -26,6 +26,11 @@ def get_data_dir() -> Path:
     return Path(current_app.config["DATA_DIR"])
 
 
+def get_cases():
+    """The app's ``clinic.reports.case_cache.CaseCache``: pregnancies and plans kept between pages."""
+    return _ext()["cases"]
+
+
 def get_settings():
     """The app's clinic.config.Settings."""
     return _ext()["settings"]
@@ -44,8 +49,17 @@ def get_profile():
 
 def plan_for(pregnancy_id: str, history: tuple | None = None):
     """The care engine's Plan for one pregnancy, now. ``history``: the (woman, pregnancy, entries)
-    of ``store.history(pregnancy_id)`` when the caller has read it already."""
-    return plan_from_settings(get_settings(), history or get_store().history(pregnancy_id), utcnow())
+    of ``store.history(pregnancy_id)`` when the caller has read it already.
+
+    Plans are kept per app (``clinic.reports.plan_cache``): a pregnancy whose records and
+    profile are unchanged is not planned again while its plan still holds (read it, never
+    change it)."""
+    history = history or get_store().history(pregnancy_id)
+    plans = _ext().get("plans")
+    if plans is None:
+        return plan_from_settings(get_settings(), history, utcnow())
+    profile, context = care_inputs(get_settings())
+    return plans.plan(history, now=utcnow(), profile=profile, context=context)
 
 
 def init_app(app: Flask) -> None:

@@ -4,8 +4,7 @@ from __future__ import annotations
 from datetime import timedelta
 
 from clinic.care.codes import OPEN_STATES, AlertCode, Category
-from clinic.care.errors import CareError
-from clinic.web.db import get_settings, get_store, plan_for, utcnow
+from clinic.web.db import get_cases, get_settings, get_store, utcnow
 from clinic.web.helpers import as_dt
 from clinic.web.helpers import field_of as _get
 
@@ -47,26 +46,33 @@ def cared_for_here(preg: dict, facility_id: str) -> bool:
 
 
 def build(flt: str = "all") -> dict:
-    """{"rows": [{item, alerts, woman, pregnancy, plan}], "alerts": [...]}, most urgent first."""
+    """{"rows": [{item, alerts, woman, pregnancy, plan}], "alerts": [...]}, most urgent first.
+
+    The pregnancies and their plans come from the app's ``CaseCache`` (``clinic.reports.case_cache``):
+    only partitions written since the last look are read again, and only pregnancies whose
+    records changed or whose plan no longer holds are planned again."""
     if flt not in FILTERS:
         raise KeyError(flt)
     store, s = get_store(), get_settings()
     now = utcnow()
     rows, alerts = [], []
-    for preg in store.pregnancies():
-        if preg.get("status") not in ACTIVE_STATUS or preg.get("voided") or not cared_for_here(preg, s.facility_id):
+
+    def here(woman: dict, preg: dict, entries: list[dict]) -> bool:
+        return preg.get("status") in ACTIVE_STATUS and not preg.get("voided") and cared_for_here(preg, s.facility_id)
+
+    failed: list = []
+    cases = get_cases().cases(store, s, now=now, select=here, failed=failed).cases
+    cases.sort(key=lambda c: (c.pregnancy.get("created_at") or "", c.id))  # the order they were booked in
+    for woman, preg, message in failed:
+        if not here(woman or {}, preg, []):
             continue
-        history = store.history(preg["id"])
-        woman = history[0]
-        try:
-            plan = plan_for(preg["id"], history)
-        except CareError as e:
-            # Said out loud, not skipped: this pregnancy's items cannot be shown until it is fixed.
-            alerts.append({"alert": {"code": AlertCode.PLAN_FAILED, "severity": "danger", "source": "rhledger",
-                                     "message": f"the plan could not be worked out ({e}); open her record "
-                                                f"and check the entries"},
-                           "woman": woman, "pregnancy": preg})
-            continue
+        # Said out loud, not skipped: this pregnancy's items cannot be shown until it is fixed.
+        alerts.append({"alert": {"code": AlertCode.PLAN_FAILED, "severity": "danger", "source": "rhledger",
+                                 "message": f"the plan could not be worked out ({message}); open her record "
+                                            f"and check the entries"},
+                       "woman": woman, "pregnancy": preg})
+    for case in cases:
+        woman, preg, plan = case.woman, case.pregnancy, case.plan
         for a in _get(plan, "alerts", ()) or ():
             if _get(a, "severity") in ("danger", "warning") and flt == "all":
                 alerts.append({"alert": a, "woman": woman, "pregnancy": preg})
