@@ -1,6 +1,7 @@
 """District pages: the monthly coverage report, downloads, bundle upload, clinic export.
 
-    /district/                       the month's coverage, 12-month trend charts, downloads
+    /district/                       the month's coverage: a summary chart first, then the tables,
+                                     12-month trend charts, downloads
     /district/report.<fmt>?month=    csv, pdf, json, fhir (no names); fhir-records (names)
     /district/follow-up?month=       who was missed, by name (roles in ROLES_SEEING_NAMES)
     /district/import                 upload many bundles at once (one fetch per file, progress)
@@ -56,6 +57,7 @@ def index():
     from clinic.reports.charts import chart
     from clinic.reports.coverage import ATTRIBUTION, CAUTION, DISTRICT, INDICATORS, NULL_PERCENT, TIME_ZONE_NOTE
     from clinic.reports.render_pdf import sections
+    from clinic.reports.summary import summary_svg
 
     month = _month()
     p = _prepared(month)
@@ -64,6 +66,7 @@ def index():
     months = [month.shift(-k) for k in range(0, 13)]
     return render_template("district/report.html", rep=rep, month=month, months=months, sections=sections(),
                            indicators=INDICATORS, charts=charts, caution=CAUTION,
+                           summary_chart=summary_svg(rep),
                            notes=[NULL_PERCENT, ATTRIBUTION, TIME_ZONE_NOTE], names=may_see_names(),
                            formats=AGGREGATE_FORMATS, follow_up_count=len(rep.follow_up) + len(rep.sensitisations),
                            district_key=DISTRICT, nav_active="district",

@@ -49,11 +49,16 @@ def today():
     flt = request.args.get("filter", "all")
     if flt not in worklist.FILTERS:
         abort(400, f"filter {flt!r} is not one of: {', '.join(worklist.FILTERS)}")
+    from clinic.web import triage
     from clinic.web.auth import WRITE_ROLES
 
     wl = worklist.build(flt)
+    tiers = triage.triage(wl["rows"], wl["now"])
+    urgent = tiers[0] if tiers and tiers[0].key == "now" else None
     return render_template("today.html", wl=wl, filters=worklist.FILTERS, nav_active="today",
-                           write_roles=WRITE_ROLES)
+                           write_roles=WRITE_ROLES, urgent=urgent, later=tiers[1:] if urgent else tiers,
+                           alert_groups=triage.alert_groups(wl["alerts"]), short_title=triage.short_title,
+                           headline=triage.headline)
 
 
 @bp.route("/find")

@@ -47,12 +47,14 @@ def cared_for_here(preg: dict, facility_id: str) -> bool:
 
 
 def build(flt: str = "all") -> dict:
-    """{"rows": [{item, alerts, woman, pregnancy, plan}], "alerts": [...]}, most urgent first."""
+    """{"rows": [{item, woman, pregnancy}], "alerts": [...], "filter", "counts": {filter: rows}},
+    most urgent first; "counts" gives the rows of every filter. Alerts come with the "all" filter
+    (and a plan that could not be made, with every filter)."""
     if flt not in FILTERS:
         raise KeyError(flt)
     store, s = get_store(), get_settings()
     now = utcnow()
-    rows, alerts = [], []
+    candidates, alerts = [], []
     for preg in store.pregnancies():
         if preg.get("status") not in ACTIVE_STATUS or preg.get("voided") or not cared_for_here(preg, s.facility_id):
             continue
@@ -68,7 +70,7 @@ def build(flt: str = "all") -> dict:
                            "woman": woman, "pregnancy": preg})
             continue
         for a in _get(plan, "alerts", ()) or ():
-            if _get(a, "severity") in ("danger", "warning") and flt == "all":
+            if _get(a, "severity") in ("danger", "warning"):
                 alerts.append({"alert": a, "woman": woman, "pregnancy": preg})
         for it in _get(plan, "items", ()) or ():
             state = _get(it, "state")
@@ -78,9 +80,7 @@ def build(flt: str = "all") -> dict:
                 start = as_dt(_get(it, "opens")) or as_dt(_get(it, "due"))
                 if start is None or start > now + SOON:
                     continue
-            if not _matches(it, flt, now):
-                continue
-            rows.append({"item": it, "woman": woman, "pregnancy": preg})
+            candidates.append({"item": it, "woman": woman, "pregnancy": preg})
     far = now + timedelta(days=3650)
 
     def urgency(r):
@@ -92,7 +92,11 @@ def build(flt: str = "all") -> dict:
         late = as_dt(_get(it, "late_until")) if state == "overdue" else None
         return (rank, late or as_dt(_get(it, "closes")) or as_dt(_get(it, "due")) or far)
 
-    rows.sort(key=urgency)
+    candidates.sort(key=urgency)
+    counts = {f: sum(1 for r in candidates if _matches(r["item"], f, now)) for f in FILTERS}
+    rows = [r for r in candidates if _matches(r["item"], flt, now)]
     sev = {"danger": 0, "warning": 1}
     alerts.sort(key=lambda a: sev.get(_get(a["alert"], "severity"), 2))
-    return {"rows": rows, "alerts": alerts, "filter": flt}
+    if flt != "all":  # a filtered list still says when a plan could not be made
+        alerts = [a for a in alerts if _get(a["alert"], "code") == AlertCode.PLAN_FAILED]
+    return {"rows": rows, "alerts": alerts, "filter": flt, "counts": counts, "now": now}
