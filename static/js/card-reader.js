@@ -7,8 +7,8 @@
    2. ZXing-C++ compiled to WebAssembly (static/vendor/zxing-wasm), its .wasm fetched from
       this server (the address is the page's data-zxing-wasm, never the library's CDN);
    3. jsQR (static/vendor/jsqr), plain JavaScript and weak on dense codes: the last fallback.
-   The card's code is dense (QR version 15 to 21 for most cards), which is where jsQR fails on
-   a tilted, dimly lit card.
+   The card's code is dense (QR version 15 to 25), which is where jsQR fails on a tilted, dimly
+   lit card.
 
    After a few seconds without a card code the page says what to try and offers the photo
    upload in one tap. The camera needs a secure page (https, or http://localhost); elsewhere
@@ -212,6 +212,7 @@
       help.hidden = false;
       return;
     }
+    if (root.getAttribute("data-state") === "starting") { return; }  // a second tap while it starts
     say("Starting the camera…");
     state("starting");
     Promise.all([navigator.mediaDevices.getUserMedia(constraints()), current || nextDecoder()])

@@ -214,10 +214,13 @@ def camera_browser(video: Path):
             b.close()
 
 
-def reader_page(browser, base_url: str, user: str, password: str, init_script: str | None = None):
-    """A signed-in phone-sized page allowed to use the camera; its JavaScript errors in .errors."""
+def reader_page(browser, base_url: str, user: str, password: str, init_script: str | None = None,
+                service_workers: str = "allow"):
+    """A signed-in phone-sized page allowed to use the camera; its JavaScript errors in .errors.
+    (``service_workers="block"`` when the test routes the page's requests: Playwright does not
+    see what the service worker fetches.)"""
     from tests.web.browser_fixtures import PHONE, TIMEOUT_MS
-    ctx = browser.new_context(base_url=base_url, viewport=PHONE, locale="en-GB")
+    ctx = browser.new_context(base_url=base_url, viewport=PHONE, locale="en-GB", service_workers=service_workers)
     ctx.set_default_timeout(TIMEOUT_MS)
     ctx.grant_permissions(["camera"], origin=base_url)
     if init_script:

@@ -158,3 +158,26 @@ def test_nothing_found_brings_help_and_the_photo_in_one_tap(server, card_text, t
         assert page.get_attribute("[data-trust]", "data-trust") == "trusted"
         assert not page.errors, page.errors
 
+
+
+@pytest.mark.parametrize("script_src,decoder", [("'self' 'wasm-unsafe-eval'", "zxing-wasm"), ("'self'", "jsqr")],
+                         ids=["wasm-allowed", "wasm-refused"])
+def test_under_a_strict_content_security_policy(server, card_text, tmp_path, script_src, decoder):
+    """WebAssembly runs only where the page's policy allows 'wasm-unsafe-eval'; where it does not,
+    the reader still reads, with jsQR, and no error reaches the page."""
+    live, _ = server
+    video = qr_video(card_text, tmp_path / "camera.y4m")
+    policy = (f"default-src 'self'; script-src {script_src}; img-src 'self' data: blob:; media-src 'self' blob:; "
+              f"object-src 'none'; base-uri 'none'")
+
+    def with_policy(route):
+        response = route.fetch()
+        route.fulfill(response=response, headers={**response.headers, "content-security-policy": policy})
+
+    with camera_browser(video) as b:
+        page = reader_page(b, live.url, "demo", PASSWORD, service_workers="block")
+        page.route("**/cards/", with_policy)
+        read = read_with_camera(page, timeout_ms=15000)
+        assert read.fields["decoder"] == decoder and read.fields["code"] == card_text
+        assert page.get_attribute("[data-trust]", "data-trust") == "trusted"
+        assert not page.errors, page.errors
