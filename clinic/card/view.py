@@ -120,6 +120,16 @@ def _carried(plan: dict, tz: tzinfo) -> tuple[list[dict], list[dict]]:
     return missed, earlier
 
 
+def _carried_line(plan: dict) -> str:
+    """One line for the front of the card when something travels with her (the back says what)."""
+    earlier = plan.get("earlier") or []
+    if any(e.get("antibodies") for e in earlier):
+        return "Antibody in an earlier pregnancy \u2013 see the back"
+    if plan.get("missed_doses") or any(e.get("missed") for e in earlier):
+        return "Anti-D missed \u2013 see the back"
+    return ""
+
+
 def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict | None = None,
                issuer: dict, issue: int, issued_at: str, card_code: str = "", qr_text: str = "",
                qr_version: int | None = None, omitted: int = 0, tz: tzinfo = timezone.utc,
@@ -208,7 +218,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
         "sensitised": is_sensitised(live),
         "sensitised_line": SENSITISED_LINE,
         "screens": screens, "events": events, "doses": doses, "births": births, "actions": actions,
-        "missed": missed, "earlier": earlier, "referrals": referrals,
+        "missed": missed, "earlier": earlier, "referrals": referrals, "carried_line": _carried_line(plan or {}),
         "issuer": {"name": issuer.get("name", ""), "phone": issuer.get("phone", ""),
                    "facility_id": issuer.get("facility_id", "")},
         "issue": issue, "issued": show_date(local_date(issued_at, tz)), "issued_at": issued_at,

@@ -191,7 +191,8 @@ def fetal_hb_cmd(hb, ga, profile_id, data, as_json):
 @calc_group.command("fmh")
 @click.option("--fetal-cells", type=int, default=None, help="Fetal cells counted (Kleihauer-Betke).")
 @click.option("--cells-counted", type=int, default=None, help="Total cells counted.")
-@click.option("--percent", "percent", type=float, default=None, help="Fetal cells % (flow cytometry), instead of counts.")
+@click.option("--percent", "percent", type=float, default=None,
+              help="Fetal cells % (flow cytometry), instead of counts.")
 @click.option("--maternal-volume-ml", type=float, default=None,
               help="Maternal blood volume, mL (default: the facility's, else 5000).")
 @click.option("--height-cm", type=float, default=None, help="Estimate the blood volume from height (Nadler 1962)...")
@@ -224,8 +225,8 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
                         maternal_volume_ml=maternal_volume_ml, route=route, vial_sizes_iu=sizes)
     r["maternal_volume_basis"] = basis
     r["profile"] = prof.id
-    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal red "
-             f"cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
+    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal "
+             f"red cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
              f"anti-D needed ({route}): {_dose_text(r['dose_iu'])}  [{r['working']}]"]
     for v in r["vials_by_product"]:
         lines.append(f"  {v['vials']} vial(s) of {_dose_text(v['vial_iu'])} = {_dose_text(v['total_iu'])}")
@@ -238,19 +239,23 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
 @click.option("--kind", required=True, type=click.Choice(EVENT_KINDS), help="The sensitising event.")
 @click.option("--ga", required=True, help="GA at the event, 10+0 or decimal weeks.")
 @click.option("--ongoing", is_flag=True, help="Bleeding continues (intermittent).")
+@click.option("--heavy/--not-heavy", default=None, help="The bleeding is heavy (or not); left out: not known.")
+@click.option("--repeated/--not-repeated", default=None, help="The bleeding is repeated (or not).")
+@click.option("--pain/--no-pain", default=None, help="With abdominal pain (or without).")
 @click.option("--stocked-vial-iu", type=int, multiple=True,
               help="Vial sizes stocked, IU (repeatable; default: the facility's products).")
 @profile_option
 @data_option
 @json_option
 @clean_errors(*ERRORS)
-def event_dose_cmd(kind, ga, ongoing, stocked_vial_iu, profile_id, data, as_json):
+def event_dose_cmd(kind, ga, ongoing, heavy, repeated, pain, stocked_vial_iu, profile_id, data, as_json):
     """Anti-D for a sensitising event: dose, deadline, FMH test."""
     prof = _profile(profile_id, data)
     s = _settings(data)
     products = tuple(Product(f"{v} IU vial", v) for v in stocked_vial_iu) or (s.products if s else ())
     days = _ga(ga)
-    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing)
+    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing, bleeding_heavy=heavy,
+                        bleeding_repeated=repeated, abdominal_pain=pain)
     obj = r.to_dict()
     obj.update({"kind": kind, "ga_days": days, "ga": format_ga(days), "profile": prof.id,
                 "profile_version": prof.version, "caution": prof.caution})
@@ -320,8 +325,8 @@ def iut_cmd(efw_g, hc_cm, ac_cm, fl_cm, fetal_hct, target_hct, donor_hct, as_jso
             raise CareInputError("efw_g", "give --efw-g, or --hc-cm, --ac-cm and --fl-cm to estimate it (Hadlock 1985)")
         efw_g = calc.hadlock_efw(hc_cm, ac_cm, fl_cm)
     r = calc.iut_volume(efw_g, fetal_hct, target_hct, donor_hct)
-    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> {target_hct:g} %, "
-                      f"donor {donor_hct:g} %)", f"  {r['suggestion']}", f"  source: {r['source']}"])
+    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> "
+                      f"{target_hct:g} %, donor {donor_hct:g} %)", f"  {r['suggestion']}", f"  source: {r['source']}"])
 
 
 def register(cli: click.Group) -> None:
