@@ -87,3 +87,18 @@ def test_booking_her_next_pregnancy_raises_the_alert_at_booking(client, store, b
     assert api["plan"]["earlier"][0]["pregnancy_id"] == booked["pregnancy"]["id"]
     today = client.get("/").get_data(as_text=True)
     assert "anti-D missed" in today
+
+
+def test_the_api_takes_the_facts_and_refuses_a_bad_one_by_name(client, booked):
+    pid = booked["pregnancy"]["id"]
+    body = {"kind": "event", "pregnancy_id": pid,
+            "fields": {"event_kind": "threatened-miscarriage", "occurred_at": at_ago(hours=1), "bleeding_heavy": True,
+                       "bleeding_repeated": False, "abdominal_pain": False}}
+    r = client.api("POST", "/api/v1/records", json=body)
+    assert r.status_code == 201, r.get_json()
+    rec = r.get_json()["record"]
+    assert (rec["bleeding_heavy"], rec["bleeding_repeated"], rec["abdominal_pain"]) == (True, False, False)
+    body["fields"]["abdominal_pain"] = "sometimes"
+    body["id"] = "0d8e4d4c-5a0f-4d1e-9c3b-2b1a0f9e8d7c"
+    bad = client.api("POST", "/api/v1/records", json=body)
+    assert bad.status_code == 422 and "abdominal_pain" in str(bad.get_json())
