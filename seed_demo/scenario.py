@@ -275,7 +275,7 @@ def _stock_plan(s: Site, doses: list[Planned], clock: Clock) -> list[Planned]:
     first_use = {}
     for d in doses:
         first_use[d.fields["lot"]] = min(first_use.get(d.fields["lot"], d.at), d.at)
-    for lot in s.lots.values():
+    for _key, lot in s.lots.items():
         # Delivered before the first dose given from it (the stories reach back months).
         t = clock.now - timedelta(days=lot.received_days_ago)
         if lot.lot in first_use:
@@ -678,4 +678,7 @@ def _district_notes(summary: dict) -> list[str]:
     for b in summary.get("bundles", []):
         notes.append(f"Bundle to import: {b['file']} ({b['records']} records from {b['facility_id']})")
     notes.append("Import them all (district page, Import) to see last month's coverage report and follow-up list")
+    a, b = SITE_DEFS["clinic-a"], SITE_DEFS["clinic-b"]
+    notes.append(f"Then Supply: {b.name} runs out of 1500 IU vials within weeks; {a.name}'s lot "
+                 f"{a.lots['short-dated'].lot} would expire unused, and the suggested transfer to {b.name} saves it")
     return notes

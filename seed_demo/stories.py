@@ -433,16 +433,16 @@ STORIES: tuple[Story, ...] = (
                  doses={"postpartum-dose": 1500}), village="Rusoka", age=26),
     Story("b-lm-on-time", "Sabina Kerubo", "clinic-b", PROPH,
           "Born last month, dose 30 hours after birth (on time)",
-          ("38+6", last_month(19, 22)), tuple(_neg_booking() + _routine("28+1", 300, "ug")
-                                              + birth(last_month(19, 22)) + [
+          ("38+6", last_month(19, 22)),
+          tuple(_neg_booking() + _routine("28+1", 300, "ug") + birth(last_month(19, 22)) + [
               rosette(after("birth", hours=4), "negative", covers="birth"),
               dose(after("birth", hours=30), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "on-time"}),
           village="Oloshi", age=24),
     Story("b-lm-late", "Lucia Mwende", "clinic-b", PROPH,
           "Born last month, dose given on day 6 (late)",
-          ("39+3", last_month(10, 11)), tuple(_neg_booking() + _routine("28+0", 300, "ug")
-                                              + birth(last_month(10, 11)) + [
+          ("39+3", last_month(10, 11)),
+          tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(last_month(10, 11)) + [
               rosette(after("birth", hours=5), "negative", covers="birth"),
               dose(after("birth", days=6), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
@@ -455,8 +455,8 @@ STORIES: tuple[Story, ...] = (
           gravidity=4, parity=3),
     Story("b-lm-baby-neg", "Ylva Achola", "clinic-b", PROPH,
           "Born last month, baby RhD negative: postpartum dose not needed",
-          ("39+2", last_month(16, 8)), tuple(_neg_booking() + _routine("28+2", 300, "ug")
-                                             + birth(last_month(16, 8), baby_rhd="negative")),
+          ("39+2", last_month(16, 8)),
+          tuple(_neg_booking() + _routine("28+2", 300, "ug") + birth(last_month(16, 8), baby_rhd="negative")),
           Expect(ENDED, items={"postpartum-dose": ("not-needed",)}), village="Oloshi", age=28),
     Story("b-lm-routine", "Miriam Koros", "clinic-b", PROPH,
           "Routine window last month: 300 µg given at 28+1 early last month (on time)",
@@ -563,8 +563,8 @@ STORIES: tuple[Story, ...] = (
           village="Kesero", age=27),
     Story("c-lm-missed", "Lovisa Anyona", "clinic-c", PROPH,
           "Born early last month at home, baby RhD positive, no dose: missed",
-          ("39+0", last_month(5, 2)), tuple(_neg_booking() + _routine("28+2", 500, lot="small")
-                                            + birth(last_month(5, 2))),
+          ("39+0", last_month(5, 2)),
+          tuple(_neg_booking() + _routine("28+2", 500, lot="small") + birth(last_month(5, 2))),
           Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6,
           parity=5),
     Story("c-missed-window", "Tove Anyango", "clinic-c", PROPH,

@@ -56,7 +56,8 @@ CAUTION = ("Decision support only: confirm every dose against the product label 
 
 __all__ = [
     "CAUTION", "Alert", "CareContext", "CareError", "CareInputError", "Dating", "EarlierPregnancy", "EventDose",
-    "MissedDose", "Plan", "PlanItem", "Product", "Profile", "ProfileError", "antibody_risk", "choose_dating", "edd_from_lmp", "edd_naegele_calendar",
+    "MissedDose", "Plan", "PlanItem", "Product", "Profile", "ProfileError", "antibody_risk", "choose_dating",
+    "edd_from_lmp", "edd_naegele_calendar",
     "event_dose", "fetal_hb_median", "fetal_hb_mom", "fetal_hb_result", "fetal_hb_severity", "fetal_rhd_probability",
     "fmh_dose_iu", "fmh_result", "fmh_volume", "ga_days_from_crl", "ga_from_crl", "ga_on", "hadlock_efw", "iu_to_ug",
     "iut_volume", "list_profiles", "load_profile", "mca_psv_median", "mca_psv_mom", "mca_result", "mca_severity",
