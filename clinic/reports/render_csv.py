@@ -41,7 +41,7 @@ FOLLOW_UP_COLUMNS = ("facility", "last_seen_at", "indicator", "what", "due_local
 
 
 def follow_up_rows(report: MonthReport, women: dict[str, dict], tz) -> list[dict]:
-    """Follow-up list with names: for roles in clinic.config.ROLES_SEEING_NAMES only."""
+    """Follow-up list with names: for roles with the follow-up permission (clinic.accounts.roles.FOLLOW_UP) only."""
     rows = []
     for fu in report.follow_up + report.sensitisations:
         w = women.get(fu.woman_id, {})
