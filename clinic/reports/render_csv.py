@@ -3,6 +3,11 @@
 An empty denominator means the indicator is a count; an empty percentage means the
 denominator is 0 or the indicator is a count. No names: follow-up lists are separate
 (``follow_up_csv``) and only for roles that may see names.
+
+Every text cell that a spreadsheet would read as a formula (it begins with =, +, -, @, a
+tab or a carriage return) is written with a leading apostrophe (``safe_cell``), so a name
+or a note typed at a clinic can never run as a formula on the district's computer; a phone
+number "+000 ..." then reads '+000 ... and shows as typed.
 """
 from __future__ import annotations
 
@@ -14,6 +19,20 @@ from clinic.reports.month import Month
 
 COLUMNS = ("month", "facility", "facility_name", "section", "indicator", "title",
            "numerator", "denominator", "percentage")
+
+
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+
+
+def safe_cell(v):
+    """A CSV cell that a spreadsheet will not evaluate (numbers stay numbers)."""
+    if isinstance(v, str) and v.startswith(FORMULA_STARTS):
+        return "'" + v
+    return v
+
+
+def _row(values) -> list:
+    return [safe_cell(v) for v in values]
 
 
 def _num(v):
@@ -30,9 +49,9 @@ def coverage_csv(reports: dict[Month, MonthReport] | list[MonthReport]) -> str:
         for fac in rep.columns:
             for ind in INDICATORS:
                 c = rep.cell(fac, ind.id)
-                w.writerow([str(rep.month), "district" if fac == DISTRICT else fac, rep.facility_name(fac),
+                w.writerow(_row([str(rep.month), "district" if fac == DISTRICT else fac, rep.facility_name(fac),
                             ind.section, ind.id, ind.title, c.numerator, _num(c.denominator),
-                            _num(c.percentage)])
+                            _num(c.percentage)]))
     return out.getvalue()
 
 
@@ -41,7 +60,7 @@ FOLLOW_UP_COLUMNS = ("facility", "last_seen_at", "indicator", "what", "due_local
 
 
 def follow_up_rows(report: MonthReport, women: dict[str, dict], tz) -> list[dict]:
-    """Follow-up list with names: for roles with the follow-up permission (clinic.accounts.roles.FOLLOW_UP) only."""
+    """Follow-up list with names: only for roles with the follow-up permission (roles.FOLLOW_UP)."""
     rows = []
     for fu in report.follow_up + report.sensitisations:
         w = women.get(fu.woman_id, {})
@@ -60,8 +79,8 @@ def follow_up_csv(report: MonthReport, women: dict[str, dict], tz) -> str:
     w = csv.DictWriter(out, FOLLOW_UP_COLUMNS, lineterminator="\n")
     w.writeheader()
     for row in follow_up_rows(report, women, tz):
-        w.writerow(row)
+        w.writerow({k: safe_cell(v) for k, v in row.items()})
     return out.getvalue()
 
 
-__all__ = ["coverage_csv", "follow_up_csv", "follow_up_rows"]
+__all__ = ["coverage_csv", "follow_up_csv", "follow_up_rows", "safe_cell"]

@@ -23,6 +23,7 @@ for the next one.
 from __future__ import annotations
 
 import hmac
+import math
 import secrets
 import threading
 import time
@@ -253,7 +254,7 @@ def _local_time(ts: float) -> str:
 
 
 def _lock_message(until: float) -> str:
-    mins = max(1, int((until - clock()) // 60) + 1)
+    mins = max(1, math.ceil((until - clock()) / 60))
     s = get_settings()
     return (f"This account is locked after {s.lock_after} wrong passwords in a row, until {_local_time(until)} "
             f"(about {mins} min). Wait until then, or ask an administrator to unlock it.")
