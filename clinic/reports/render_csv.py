@@ -7,7 +7,8 @@ denominator is 0 or the indicator is a count. No names: follow-up lists are sepa
 Every text cell that a spreadsheet would read as a formula (it begins with =, +, -, @, a
 tab or a carriage return) is written with a leading apostrophe (``safe_cell``), so a name
 or a note typed at a clinic can never run as a formula on the district's computer; a phone
-number "+000 ..." then reads '+000 ... and shows as typed.
+number "+000 ..." then reads '+000 ... and shows as typed. Rows end with CRLF (RFC 4180),
+so a cell holding a carriage return is quoted and cannot start a row of its own.
 """
 from __future__ import annotations
 
@@ -21,6 +22,7 @@ COLUMNS = ("month", "facility", "facility_name", "section", "indicator", "title"
            "numerator", "denominator", "percentage")
 
 
+LINE_END = "\r\n"
 FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -43,7 +45,7 @@ def coverage_csv(reports: dict[Month, MonthReport] | list[MonthReport]) -> str:
     """The rows of every report given (oldest month first), district last in each month."""
     items = sorted(reports.values() if isinstance(reports, dict) else reports, key=lambda r: r.month)
     out = io.StringIO()
-    w = csv.writer(out, lineterminator="\n")
+    w = csv.writer(out, lineterminator=LINE_END)
     w.writerow(COLUMNS)
     for rep in items:
         for fac in rep.columns:
@@ -76,7 +78,7 @@ def follow_up_rows(report: MonthReport, women: dict[str, dict], tz) -> list[dict
 
 def follow_up_csv(report: MonthReport, women: dict[str, dict], tz) -> str:
     out = io.StringIO()
-    w = csv.DictWriter(out, FOLLOW_UP_COLUMNS, lineterminator="\n")
+    w = csv.DictWriter(out, FOLLOW_UP_COLUMNS, lineterminator=LINE_END)
     w.writeheader()
     for row in follow_up_rows(report, women, tz):
         w.writerow({k: safe_cell(v) for k, v in row.items()})
