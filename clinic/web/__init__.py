@@ -40,6 +40,8 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     from clinic.store import Store
 
     app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
+    # "//" in a path is not quietly redirected (an API client gets a 404 with a message instead).
+    app.url_map.merge_slashes = False
     data = data_dir_from(data_dir or (test_config or {}).get("DATA_DIR")).resolve()
     app.config.from_mapping(
         DATA_DIR=str(data),
