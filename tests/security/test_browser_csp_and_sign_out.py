@@ -5,8 +5,7 @@ from __future__ import annotations
 
 import pytest
 
-from tests.web.browser_fixtures import (browser, context, demo_site, is_csp_violation, live,  # noqa: F401
-                                        page, wait_for_worker)
+from tests.web.browser_fixtures import browser, context, demo_site, is_csp_violation, live, page, wait_for_worker  # noqa: F401
 
 pytestmark = pytest.mark.browser
 
@@ -30,7 +29,8 @@ def test_the_console_check_sees_a_csp_violation(browser, live):
         pg.on("console", lambda m: seen.append(m.text))
         pg.goto("/signin")
         pg.evaluate("""() => { document.body.insertAdjacentHTML('beforeend', '<div style="color:red">x</div>');
-            const s = document.createElement('script'); s.textContent = 'window.ran = 1'; document.body.appendChild(s); }""")
+            const s = document.createElement('script'); s.textContent = 'window.ran = 1';
+            document.body.appendChild(s); }""")
         pg.wait_for_timeout(300)
         assert pg.evaluate("window.ran === undefined"), "an inline script ran"
         assert any(is_csp_violation(t) for t in seen), seen
@@ -126,3 +126,15 @@ def test_signing_out_drops_the_kept_pages_and_keeps_the_outbox(page, context, li
     kept = [e for e in entries if e["key"] == rid]
     assert kept and kept[0]["user"] == "another-midwife", entries
     assert live.store.get(rid) is None   # never sent in the name of whoever was signed in
+
+
+def test_a_page_left_open_ends_itself_after_the_idle_time(page, live):
+    """session.js: no key, touch or click for idle-seconds -> the kept pages go, the sign-in page shows.
+    (The idle time is shortened to 2 s for the test by rewriting the page's meta before it is read.)"""
+    pid = _pregnancy_with(live, "typing")
+    sign_in_as(page, live, "midwife")
+    page.add_init_script("""document.addEventListener("DOMContentLoaded", () => {
+        const m = document.querySelector('meta[name="idle-seconds"]'); if (m) m.setAttribute("content", "2"); });""")
+    page.goto(f"/pregnancies/{pid}")
+    page.wait_for_url("**/signin?ended=idle**", timeout=20000)
+    assert f"next=%2Fpregnancies%2F{pid}" in page.url

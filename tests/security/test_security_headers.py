@@ -101,8 +101,8 @@ def test_no_template_or_script_has_inline_script_style_or_handlers():
 
 
 def test_server_drawn_charts_use_no_style_attributes(tmp_path):
-    from clinic.web import charts
     from clinic.reports import charts as report_charts  # noqa: F401 - the district trend charts
+    from clinic.web import charts
 
     svg = str(charts.titre_chart([(140, 4, "anti-D"), (161, 16, "anti-D")]))
     svg += str(charts.mca_chart([(150, 30.0), (170, 40.0)], lambda d: 0.2 * d, [(1.0, "1.0 MoM", "mom-median"),

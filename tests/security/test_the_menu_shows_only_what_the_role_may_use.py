@@ -27,7 +27,8 @@ def _menu(html: str) -> list[str]:
 def test_the_menu_of_each_role(tmp_path, role):
     world = make_world(tmp_path)
     c = Client(world.app, role)
-    r = c.get("/calc/" if role not in ("district-officer", "admin") else "/stock" if role != "admin" else "/admin/users")
+    start = {"district-officer": "/stock", "admin": "/admin/users"}.get(role, "/calc/")
+    r = c.get(start)
     assert _menu(r.get_data(as_text=True)) == MENU[role]
     for label in MENU[role]:
         href = re.search(rf'<a href="([^"]+)"[^>]*>{label}</a>', r.get_data(as_text=True)).group(1)
