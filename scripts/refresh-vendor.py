@@ -46,7 +46,7 @@ LIBRARIES = (
         version="6.3.0",
         integrity="sha512-um+2dgAWmYsu615EXpWVwSmapJhON0G43t3Ka/EVaohzPQXSMqKEqeDK/oIW3Ow+BXaF2PvSc+oBTFp793A5Ow==",
         files={"dist/umd.js": "idb-keyval.umd.js", "LICENCE": "LICENSE"},
-        used_for="IndexedDB outbox of forms saved on the phone (static/js/net-queue.js, page and service worker)",
+        used_for="IndexedDB outbox of forms saved on the phone (static/js/outbox/queue.js, page and service worker)",
     ),
     # The card reader's QR decoder (static/vendor/jsqr/VERSION.txt is the card developer's note).
     Library(

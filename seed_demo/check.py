@@ -15,16 +15,13 @@ from seed_demo.stories import Story
 
 def plan_story(data_dir: Path, story: Story, now: datetime, store=None):
     """The care engine's plan for the story's pregnancy in the installation at ``data_dir``."""
-    from clinic.care import CareContext, load_profile, plan_pregnancy
+    from clinic.care_inputs import plan_from_settings
     from clinic.config import load_settings
     from clinic.store import Store
 
     settings = load_settings(Path(data_dir))
     store = store or Store(data_dir)
-    woman, pregnancy, entries = store.history(pregnancy_id(story.key))
-    profile = load_profile(settings.profile, overrides=settings.profile_overrides)
-    return plan_pregnancy(woman, pregnancy, entries, now=now, profile=profile,
-                          context=CareContext.from_settings(settings))
+    return plan_from_settings(settings, store.history(pregnancy_id(story.key)), now)
 
 
 def _matching(plan, prefix: str):

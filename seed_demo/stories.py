@@ -25,7 +25,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 from typing import Any, Mapping
 
-from clinic.care.ga import parse_ga
+from clinic.records.values import parse_ga
 
 SITE_HOME = None  # a step with site=None happened at the story's home facility
 
@@ -402,14 +402,16 @@ STORIES: tuple[Story, ...] = (
                  doses={"postpartum-dose": 1500}), village="Rusoka", age=26),
     Story("b-lm-on-time", "Sabina Kerubo", "clinic-b", PROPH,
           "Born last month, dose 30 hours after birth (on time)",
-          ("38+6", last_month(19, 22)), tuple(_neg_booking() + _routine("28+1", 300, "ug") + birth(last_month(19, 22)) + [
+          ("38+6", last_month(19, 22)),
+          tuple(_neg_booking() + _routine("28+1", 300, "ug") + birth(last_month(19, 22)) + [
               rosette(after("birth", hours=4), "negative", covers="birth"),
               dose(after("birth", hours=30), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "on-time"}),
           village="Oloshi", age=24),
     Story("b-lm-late", "Lucia Mwende", "clinic-b", PROPH,
           "Born last month, dose given on day 6 (late)",
-          ("39+3", last_month(10, 11)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(last_month(10, 11)) + [
+          ("39+3", last_month(10, 11)),
+          tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(last_month(10, 11)) + [
               rosette(after("birth", hours=5), "negative", covers="birth"),
               dose(after("birth", days=6), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
@@ -422,7 +424,8 @@ STORIES: tuple[Story, ...] = (
           gravidity=4, parity=3),
     Story("b-lm-baby-neg", "Ylva Achola", "clinic-b", PROPH,
           "Born last month, baby RhD negative: postpartum dose not needed",
-          ("39+2", last_month(16, 8)), tuple(_neg_booking() + _routine("28+2", 300, "ug") + birth(last_month(16, 8), baby_rhd="negative")),
+          ("39+2", last_month(16, 8)),
+          tuple(_neg_booking() + _routine("28+2", 300, "ug") + birth(last_month(16, 8), baby_rhd="negative")),
           Expect(ENDED, items={"postpartum-dose": ("not-needed",)}), village="Oloshi", age=28),
     Story("b-lm-routine", "Miriam Koros", "clinic-b", PROPH,
           "Routine window last month: 300 µg given at 28+1 early last month (on time)",
@@ -511,7 +514,8 @@ STORIES: tuple[Story, ...] = (
     Story("c-lm-on-time", "Dina Nafula", "clinic-c", PROPH,
           "Born last month, postpartum 500 IU 12 hours after birth (on time)",
           ("39+6", last_month(21, 4)), tuple(_neg_booking() + _routine("28+0", 500, lot="small")
-                                             + [dose(ga("34+0"), 500, "routine-antenatal", lot="small", label="routine-2")]
+                                             + [dose(ga("34+0"), 500, "routine-antenatal", lot="small",
+                                                     label="routine-2")]
                                              + birth(last_month(21, 4)) + [
               kleihauer(after("birth", hours=2), 0.01, covers="birth"),
               dose(after("birth", hours=12), 500, "postpartum", covers="birth", lot="small")]),
@@ -520,15 +524,18 @@ STORIES: tuple[Story, ...] = (
     Story("c-lm-late", "Kawira Ostberg", "clinic-c", PROPH,
           "Born last month, postpartum dose on day 5 (late)",
           ("38+5", last_month(12, 16)), tuple(_neg_booking() + _routine("28+1", 500, lot="small")
-                                              + [dose(ga("34+1"), 500, "routine-antenatal", lot="small", label="routine-2")]
+                                              + [dose(ga("34+1"), 500, "routine-antenatal", lot="small",
+                                                      label="routine-2")]
                                               + birth(last_month(12, 16)) + [
               dose(after("birth", days=5), 500, "postpartum", covers="birth", lot="small")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
           village="Kesero", age=27),
     Story("c-lm-missed", "Lovisa Anyona", "clinic-c", PROPH,
           "Born early last month at home, baby RhD positive, no dose: missed",
-          ("39+0", last_month(5, 2)), tuple(_neg_booking() + _routine("28+2", 500, lot="small") + birth(last_month(5, 2))),
-          Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6, parity=5),
+          ("39+0", last_month(5, 2)),
+          tuple(_neg_booking() + _routine("28+2", 500, lot="small") + birth(last_month(5, 2))),
+          Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6,
+          parity=5),
     Story("c-missed-window", "Tove Anyango", "clinic-c", PROPH,
           "Routine window closed last month without the first 500 IU (did not attend at 28 weeks)",
           ("28+0", last_month(1)), tuple(_neg_booking()),

@@ -10,14 +10,15 @@
  *                          laptop cannot be reached; else the offline page
  *   /api/..., any non-GET  never touched: straight to the laptop, never cached
  *
- * The outbox (IndexedDB, see static/js/net-queue.js) is sent when this worker starts, on
- * `sync`, and when a page asks.
+ * The outbox (IndexedDB, see static/js/outbox/queue.js; sending in outbox/queue-send.js,
+ * both shared with the pages) is sent when this worker starts, on `sync`, and when a page
+ * asks.
  */
 "use strict";
 
 /*@config*/ var CONFIG = { version: "unversioned", precache: [], shell: ["/outbox", "/offline"], warm: ["/", "/book"] }; /*@end*/
 
-importScripts("/static/vendor/idb-keyval/idb-keyval.umd.js", "/static/js/net-queue.js");
+importScripts("/static/vendor/idb-keyval/idb-keyval.umd.js", "/static/js/outbox/queue.js", "/static/js/outbox/queue-send.js");
 
 var Q = self.rhOutbox;
 var STATIC_CACHE = "rhledger-static-" + CONFIG.version;
@@ -120,15 +121,33 @@ function keepPage(url, res) {
   });
 }
 
-/* The kept copy, marked so the page knows it is not live: outbox.js shows when it was
- * kept and does not trust its security token. */
+/* Pages kept before the outbox scripts were split into static/js/outbox/ name the two files
+ * they replaced, which are no longer served: such a copy gets their successors, in the
+ * order base.html loads them, or its forms would post straight to an absent laptop. Kept
+ * pages go at sign-out, so this can go once every phone has signed out since the split. */
+var REPLACED_SCRIPTS = {
+  "/static/js/net-queue.js": ["queue", "queue-send"],
+  "/static/js/outbox.js": ["core", "status", "worker", "kept", "form-request", "form-messages", "forms", "page", "start"]
+};
+
+function withCurrentScripts(html) {
+  return html.replace(/<script src="(\/static\/js\/(?:net-queue|outbox)\.js)"><\/script>/g, function (tag, src) {
+    return REPLACED_SCRIPTS[src].map(function (name) {
+      return '<script src="/static/js/outbox/' + name + '.js"></script>';
+    }).join("\n");
+  });
+}
+
+/* The kept copy, marked so the page knows it is not live: static/js/outbox/kept.js shows
+ * when it was kept, and core.js does not trust its security token. */
 function keptCopy(url) {
   // The copy kept at the last visit first, else the one pre-cached at install.
   return caches.open(PAGES_CACHE).then(function (c) { return c.match(url, { ignoreVary: true }); }).then(function (hit) {
     return hit || caches.match(url, { ignoreVary: true });
   }).then(function (hit) {
     if (!hit) { return null; }
-    return hit.text().then(function (html) {
+    return hit.text().then(function (kept) {
+      var html = withCurrentScripts(kept);
       var at = hit.headers.get("X-Kept-At") || "";
       var marker = '<meta name="rhledger-offline-copy" content="' + (at || new Date().toISOString()) + '">';
       var out = /<head[^>]*>/i.test(html) ? html.replace(/<head[^>]*>/i, function (h) { return h + marker; }) : marker + html;

@@ -107,7 +107,7 @@ def woman(store, now) -> dict:
     """One registered woman (invented)."""
     return store.create("woman", {"name": "Amina Test Wanjiru", "birth_date": "1994-05-02",
                                   "phone": "0700 000 001", "village": "Upper Ridge", "register_no": "ANC-0001"},
-                        by=USERNAME, facility=FACILITY_ID, now=now)
+                        by=USERNAME, facility=FACILITY_ID, now=now).record
 
 
 @pytest.fixture
@@ -115,4 +115,4 @@ def pregnancy(store, woman, now) -> dict:
     """An ongoing pregnancy of `woman`, booked 2026-03-02 with LMP 2025-12-15 (11+0 at booking)."""
     return store.create("pregnancy", {"booked_on": "2026-03-02", "lmp": "2025-12-15", "gravidity": 2,
                                       "parity": 1, "status": "ongoing"},
-                        by=USERNAME, facility=FACILITY_ID, woman_id=woman["id"], now=now)
+                        by=USERNAME, facility=FACILITY_ID, woman_id=woman["id"], now=now).record

@@ -1,7 +1,7 @@
 """Staff accounts in ``<data>/users.json``: who may sign in, with which role, and the lock-out.
 
-The file is written whole (temp file, fsync, rename; mode 0600) under its own file lock
-(``<data>/.users.lock``), so the server and ``rhledger users`` may change it at the same time.
+The file is written whole (temp file, fsync, rename, fsync of the folder; mode 0600) under its
+own file lock (``<data>/.users.lock``), so the server and ``rhledger users`` may change it at the same time.
 Every change to an account is also appended to ``<data>/users-log.jsonl`` naming who made it.
 
 Accounts written by earlier versions into config.toml (``[[accounts]]``, werkzeug hashes) are
@@ -27,7 +27,6 @@ from filelock import FileLock
 
 from clinic.accounts import passwords
 from clinic.accounts.roles import ROLE_LABELS, check_role
-from clinic.store.storage import atomic_write_bytes
 
 USERS_FILE = "users.json"
 USERS_LOCK = ".users.lock"
@@ -120,6 +119,34 @@ def check_display_name(text: str) -> str:
     return text
 
 
+def _write_private(path: Path, data: bytes) -> None:
+    """Replace ``path`` with ``data`` (mode 0600): old or new after a crash, never a mix."""
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.{threading.get_ident()}.tmp")
+    fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
+    try:
+        with os.fdopen(fd, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+    except BaseException:
+        tmp.unlink(missing_ok=True)
+        raise
+    dir_fd = os.open(path.parent, os.O_RDONLY)
+    try:
+        os.fsync(dir_fd)
+    finally:
+        os.close(dir_fd)
+
+
+def _append_private(path: Path, line: str) -> None:
+    fd = os.open(path, os.O_WRONLY | os.O_APPEND | os.O_CREAT, 0o600)
+    with os.fdopen(fd, "a", encoding="utf-8") as fh:
+        fh.write(line + "\n")
+        fh.flush()
+        os.fsync(fh.fileno())
+
+
 def is_demo_dir(data_dir: Path) -> bool:
     return (Path(data_dir) / DEMO_MARKER).is_file()
 
@@ -184,16 +211,12 @@ class UserStore:
     def _write(self, users: dict[str, User]) -> None:
         doc = {"format": FORMAT, "version": VERSION,
                "users": {k: {f: getattr(u, f) for f in _FIELDS} for k, u in sorted(users.items())}}
-        atomic_write_bytes(self.path, (json.dumps(doc, indent=1, ensure_ascii=False) + "\n").encode("utf-8"))
-        os.chmod(self.path, 0o600)
+        _write_private(self.path, (json.dumps(doc, indent=1, ensure_ascii=False) + "\n").encode("utf-8"))
         self._cache = None
 
     def _log(self, action: str, username: str, by: str, now: float, **extra) -> None:
-        from clinic.store.storage import append_line
-
         line = {"at": _utc(now), "by": by, "action": action, "user": username} | extra
-        append_line(self.log_path, json.dumps(line, ensure_ascii=False, sort_keys=True))
-        os.chmod(self.log_path, 0o600)
+        _append_private(self.log_path, json.dumps(line, ensure_ascii=False, sort_keys=True))
 
     def _change(self, username: str, fn, *, action: str | None, by: str, now: float, **log):
         """Apply fn(User) -> User to one account under the lock; the legacy one moves in."""

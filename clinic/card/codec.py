@@ -203,7 +203,7 @@ def _read(text: Any, trust: TrustList, via: str) -> Reading:
                        code=code, stage="cose", chars=chars)
     peek = pl.peek_issue(msg.payload)
     on_date = _issued_day(peek[2]) if peek else None
-    verified = cose.verify1(message, trust, on_date=on_date)
+    verified = trust.verify(msg, on_date=on_date)
     try:
         content = pl.decode_content(msg.payload)
     except pl.PayloadError as e:

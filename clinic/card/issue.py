@@ -26,7 +26,7 @@ import filelock
 
 from clinic.card.codec import CardText, make_card_text
 from clinic.card.view import build_view
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 from clinic.signing.files import append_line
 from clinic.signing.keys import load_signing_key
 
@@ -85,18 +85,15 @@ class IssuedCard:
     reused: bool  # the same issue as last time: nothing had changed
 
 
-def plan_dict(woman, pregnancy, entries, settings, now: datetime, profile=None) -> dict:
-    """The care engine's plan for the card's "next actions" (``profile``: the settings' profile,
-    when the caller has it loaded already)."""
-    from clinic.care import CareContext, load_profile, plan_pregnancy
-    if profile is None:
-        profile = load_profile(settings.profile, overrides=settings.profile_overrides)
-    return plan_pregnancy(woman, pregnancy, entries, now=now, profile=profile,
-                          context=CareContext.from_settings(settings)).to_dict()
+def plan_dict(woman, pregnancy, entries, settings, now: datetime) -> dict:
+    """The care engine's plan for the card's "next actions", as this installation plans."""
+    from clinic.care_inputs import plan_from_settings
+
+    return plan_from_settings(settings, (woman, pregnancy, entries), now).to_dict()
 
 
 def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = "cli",
-               now: datetime | None = None, profile=None) -> IssuedCard:
+               now: datetime | None = None) -> IssuedCard:
     """Make (or, when nothing changed, remake) the card of a pregnancy and log its issue."""
     from clinic.store import NotFound
     now = now or datetime.now(timezone.utc)
@@ -127,7 +124,7 @@ def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = 
                 "pregnancy_id": pregnancy_id, "issue": issue, "issued_at": issued_at, "card_code": card.code,
                 "sha256": card.payload_hash, "kid": key.kid.hex(), "history": hh, "entries": card.included,
                 "omitted": card.omitted, "qr_version": card.qr_version, "by": by}))
-    plan = plan_dict(woman, pregnancy, entries, settings, now, profile=profile)
+    plan = plan_dict(woman, pregnancy, entries, settings, now)
     view = build_view(woman, pregnancy, entries, plan=plan,
                       issuer={"name": settings.facility_name, "phone": settings.facility_phone,
                               "facility_id": settings.facility_id},

@@ -11,19 +11,20 @@ from typing import Any
 
 from clinic.care import CAUTION
 from clinic.care.calc import iu_to_ug, ug_to_iu
+from clinic.care.codes import OPEN_STATES
 from clinic.care.dating import ga_on
-from clinic.care.ga import format_ga
-from clinic.records.validate import parse_utc
+from clinic.records.choices import (
+    DAT_NOT_RECORDED,
+    DAT_WORDS,
+    FETAL_RHD_WORDS,
+    INDICATION_WORDS,
+    RHD_WORDS,
+    event_words,
+    plain_words,
+)
+from clinic.records.values import format_ga, parse_utc
+
 SENSITISED_LINE = "Antibody present \u2013 refer"
-RHD_WORDS = {"positive": "RhD positive", "negative": "RhD negative", "weak-d": "weak D",
-             "partial-d": "partial D", "inconclusive": "RhD inconclusive", "unknown": "RhD not known"}
-EVENT_WORDS = {"antepartum-haemorrhage": "Antepartum haemorrhage", "abdominal-trauma": "Abdominal trauma",
-               "external-cephalic-version": "External cephalic version",
-               "chorionic-villus-sampling": "Chorionic villus sampling", "fetal-blood-sampling": "Fetal blood sampling",
-               "intrauterine-death": "Intrauterine death", "molar-pregnancy": "Molar pregnancy"}
-INDICATION_WORDS = {"routine-antenatal": "routine", "sensitising-event": "after event", "postpartum": "after birth",
-                    "large-fmh": "large FMH"}
-OPEN_STATES = ("overdue", "due", "not-yet-due")
 STATE_WORDS = {"overdue": "OVERDUE", "due": "due now", "not-yet-due": "due"}
 
 
@@ -107,7 +108,8 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
         managed = (plan or {}).get("rhd", {}).get("managed_as")
         blood = {"abo": t["abo"] if t["abo"] != "unknown" else "ABO ?", "rhd": RHD_WORDS.get(t["rhd"], t["rhd"]),
                  "variant": variant, "tested_on": show_date(t.get("tested_on")), "lab": t.get("lab", ""),
-                 "managed_as": RHD_WORDS.get(managed, "") if managed and t["rhd"] not in ("positive", "negative") else ""}
+                 "managed_as": (RHD_WORDS.get(managed, "") if managed and t["rhd"] not in ("positive", "negative")
+                                else "")}
     pt = _latest(live, "partner_typing")
     fr = _latest(live, "fetal_rhd")
     screens = [{"date": show_time(s["sampled_at"], tz)[:-6], "ga": _ga_text(s, local_date(s["sampled_at"], tz), edd),
@@ -118,7 +120,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                 "origin": s.get("anti_d_origin", "")}
                for s in sorted((e for e in live if e["kind"] == "screen"), key=lambda r: r["sampled_at"])]
     events = [{"date": show_time(e["occurred_at"], tz), "ga": _ga_text(e, local_date(e["occurred_at"], tz), edd),
-               "what": EVENT_WORDS.get(e["event_kind"], e["event_kind"].replace("-", " ").capitalize()),
+               "what": event_words(e["event_kind"]).capitalize(),
                "ongoing": bool(e.get("ongoing")), "notes": e.get("notes", "")}
               for e in sorted((x for x in live if x["kind"] == "event"), key=lambda r: r["occurred_at"])]
     doses = []
@@ -128,12 +130,10 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                       "ug": ug_text(iu), "iu": f"{int(round(iu))}", "route": d["route"], "lot": d["lot"],
                       "why": INDICATION_WORDS.get(d["indication"], d["indication"]), "product": d.get("product", "")})
     births = [{"date": show_time(b["born_at"], tz), "ga": _ga_text(b, local_date(b["born_at"], tz), edd),
-               "outcome": b["outcome"].replace("-", " "),
+               "outcome": plain_words(b["outcome"]),
                "baby": " ".join(x for x in ((b.get("baby_abo") or "") if b.get("baby_abo") != "unknown" else "",
-                                            RHD_WORDS.get(b["baby_rhd"], b["baby_rhd"]) if b["baby_rhd"] != "not-tested"
-                                            else "RhD not tested") if x),
-               "dat": {"positive": "DAT positive", "negative": "DAT negative", "not-done": "DAT not done"}.get(
-                   b.get("dat") or "", "DAT not recorded")}
+                                            RHD_WORDS.get(b["baby_rhd"], b["baby_rhd"])) if x),
+               "dat": DAT_WORDS.get(b.get("dat") or "", DAT_NOT_RECORDED)}
               for b in sorted((x for x in live if x["kind"] == "birth"), key=lambda r: r["born_at"])]
     actions = []
     for it in (plan or {}).get("items", []):
@@ -167,11 +167,11 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                       "prior_sensitising": pregnancy.get("prior_sensitising", ""),
                       "prior_anti_d": pregnancy.get("prior_anti_d", "")},
         "blood": blood,
-        "partner": ({"rhd": RHD_WORDS.get(pt["rhd"], pt["rhd"]), "abo": pt.get("abo", "") if pt.get("abo") != "unknown" else "",
+        "partner": ({"rhd": RHD_WORDS.get(pt["rhd"], pt["rhd"]),
+                     "abo": pt.get("abo", "") if pt.get("abo") != "unknown" else "",
                      "zygosity": pt.get("rhd_zygosity", "") if pt.get("rhd_zygosity") != "unknown" else ""}
                     if pt else None),
-        "fetal": ({"result": {"positive": "RHD positive", "negative": "RHD negative",
-                              "inconclusive": "inconclusive"}[fr["result"]],
+        "fetal": ({"result": FETAL_RHD_WORDS[fr["result"]],
                    "date": show_date(fr["sampled_on"]), "ga": _ga_text(fr, fr["sampled_on"], edd)} if fr else None),
         "sensitised": is_sensitised(live),
         "sensitised_line": SENSITISED_LINE,

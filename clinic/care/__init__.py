@@ -5,44 +5,59 @@
     plan = plan_pregnancy(woman, pregnancy, entries, now=aware_dt, profile=profile, context=CareContext(...))
     plan.to_dict()
 
+An installation plans from its settings with ``clinic.care_inputs.plan_from_settings``.
+Gestational-age text ("30+2") is ``clinic.records.values``.
+
 Decision support only: every dose it proposes must be confirmed against the product label
 and local protocol by a licensed clinician.
 """
-import importlib
-
-# Names are loaded on first use (PEP 562): clinic.records.validate imports clinic.care.ga,
-# and the engine imports clinic.records.validate, so this package must not import the engine
-# eagerly.
-_EXPORTS = {
-    "calc": ("EventDose", "event_dose", "fetal_hb_median", "fetal_hb_mom", "fetal_hb_result", "fetal_hb_severity",
-             "fetal_rhd_probability", "fmh_dose_iu", "fmh_result", "fmh_volume", "hadlock_efw", "iu_to_ug",
-             "iut_volume", "mca_psv_median", "mca_psv_mom", "mca_result", "mca_severity", "nadler_blood_volume_ml",
-             "ug_to_iu", "vials_for"),
-    "dating": ("Dating", "choose_dating", "edd_from_lmp", "edd_naegele_calendar", "ga_days_from_crl", "ga_from_crl",
-               "ga_on", "redate_threshold_days"),
-    "errors": ("CareError", "CareInputError", "ProfileError"),
-    "ga": ("GAFormatError", "format_ga", "parse_ga"),
-    "model": ("Alert", "CareContext", "Plan", "PlanItem"),
-    "plan": ("plan_pregnancy",),
-    "protocol": ("Profile", "list_profiles", "load_profile"),
-    "surveillance": ("antibody_risk", "titre_rise"),
-}
-_WHERE = {name: mod for mod, names in _EXPORTS.items() for name in names}
+from clinic.care.calc import (
+    EventDose,
+    event_dose,
+    fetal_hb_median,
+    fetal_hb_mom,
+    fetal_hb_result,
+    fetal_hb_severity,
+    fetal_rhd_probability,
+    fmh_dose_iu,
+    fmh_result,
+    fmh_volume,
+    hadlock_efw,
+    iu_to_ug,
+    iut_volume,
+    mca_psv_median,
+    mca_psv_mom,
+    mca_result,
+    mca_severity,
+    nadler_blood_volume_ml,
+    ug_to_iu,
+    vials_for,
+)
+from clinic.care.dating import (
+    Dating,
+    choose_dating,
+    edd_from_lmp,
+    edd_naegele_calendar,
+    ga_days_from_crl,
+    ga_from_crl,
+    ga_on,
+    redate_threshold_days,
+)
+from clinic.care.errors import CareError, CareInputError, ProfileError
+from clinic.care.model import Alert, CareContext, Plan, PlanItem, Product
+from clinic.care.plan import plan_pregnancy
+from clinic.care.protocol import Profile, list_profiles, load_profile
+from clinic.care.surveillance import antibody_risk, titre_rise
 
 CAUTION = ("Decision support only: confirm every dose against the product label and local protocol, "
            "and defer to licensed clinicians and local regulations.")
 
-__all__ = sorted([*_WHERE, "CAUTION"])
-
-
-def __getattr__(name):
-    mod = _WHERE.get(name)
-    if mod is None:
-        raise AttributeError(f"module 'clinic.care' has no attribute {name!r}")
-    value = getattr(importlib.import_module(f"clinic.care.{mod}"), name)
-    globals()[name] = value
-    return value
-
-
-def __dir__():
-    return __all__
+__all__ = [
+    "CAUTION", "Alert", "CareContext", "CareError", "CareInputError", "Dating", "EventDose", "Plan", "PlanItem",
+    "Product", "Profile", "ProfileError", "antibody_risk", "choose_dating", "edd_from_lmp", "edd_naegele_calendar",
+    "event_dose", "fetal_hb_median", "fetal_hb_mom", "fetal_hb_result", "fetal_hb_severity", "fetal_rhd_probability",
+    "fmh_dose_iu", "fmh_result", "fmh_volume", "ga_days_from_crl", "ga_from_crl", "ga_on", "hadlock_efw", "iu_to_ug",
+    "iut_volume", "list_profiles", "load_profile", "mca_psv_median", "mca_psv_mom", "mca_result", "mca_severity",
+    "nadler_blood_volume_ml", "plan_pregnancy", "redate_threshold_days", "titre_rise",
+    "ug_to_iu", "vials_for",
+]

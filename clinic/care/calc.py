@@ -9,8 +9,8 @@ import math
 from dataclasses import asdict, dataclass, field
 
 from clinic.care.errors import CareInputError, require_range
-from clinic.care.ga import format_ga
 from clinic.records.schema import EVENT_KINDS, IU_PER_UG
+from clinic.records.values import format_ga
 
 _EPS = 1e-9
 
@@ -78,7 +78,8 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
     elif sev == "mild":
         step = "MCA-PSV in the mild range: suggest repeating the Doppler within 1 week (for a specialist to decide)"
     else:
-        step = "MCA-PSV below the anaemia thresholds: suggest repeating the Doppler in 1-2 weeks (for a specialist to decide)"
+        step = ("MCA-PSV below the anaemia thresholds: suggest repeating the Doppler in 1-2 weeks "
+                "(for a specialist to decide)")
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "psv_cm_s": _num(float(psv_cm_s)),
         "median_cm_s": _num(med), "mom": _num(mom), "severity": sev,
@@ -110,7 +111,7 @@ HB_GA_MAX_DAYS = 40 * 7
 def fetal_hb_median(ga_days) -> float:
     w = _ga_weeks(ga_days, HB_GA_MIN_DAYS, HB_GA_MAX_DAYS)
     keys = sorted(FETAL_HB_MEDIAN_G_DL)
-    for a, b in zip(keys, keys[1:]):
+    for a, b in zip(keys, keys[1:], strict=False):
         if a <= w <= b:
             ya, yb = FETAL_HB_MEDIAN_G_DL[a], FETAL_HB_MEDIAN_G_DL[b]
             return ya + (yb - ya) * (w - a) / (b - a)
@@ -170,7 +171,8 @@ def fmh_volume(*, fetal_cells=None, cells_counted=None, fetal_cell_percent=None,
     mbv = require_range("maternal_volume_ml", maternal_volume_ml, 2000, 10000, unit="mL")
     if fetal_cell_percent is not None:
         if fetal_cells is not None or cells_counted is not None:
-            raise CareInputError("fetal_cell_percent", "give either counts (fetal cells and cells counted) or the %, not both")
+            raise CareInputError("fetal_cell_percent",
+                                 "give either counts (fetal cells and cells counted) or the %, not both")
         frac = require_range("fetal_cell_percent", fetal_cell_percent, 0, 100, unit="%") / 100.0
     else:
         if fetal_cells is None or cells_counted is None:
@@ -207,7 +209,8 @@ def fmh_dose_iu(whole_blood_ml: float, red_cells_ml: float, profile, route: str 
         return int(dose), how
     rate = fm["iu_per_ml_red_cells_im"] if route == "IM" else fm["iu_per_ml_red_cells_iv"]
     if rate <= 0:
-        raise CareInputError("route", f"profile {profile.id} gives no IU-per-mL rate for {route}; follow the product label")
+        raise CareInputError("route",
+                             f"profile {profile.id} gives no IU-per-mL rate for {route}; follow the product label")
     need = int(math.ceil(red_cells_ml * rate - _EPS))
     dose = max(fm["min_dose_iu"], need)
     how = (f"{red_cells_ml:.2f} mL red cells x {rate:g} IU/mL ({route}) = {need} IU; "
@@ -260,7 +263,8 @@ def fetal_rhd_probability(*, rhd_negative_frequency, partner_rhd: str = "positiv
     if partner_rhd not in ("positive", "negative", "unknown"):
         raise CareInputError("partner_rhd", f"{partner_rhd!r} is not one of: positive, negative, unknown")
     if partner_zygosity not in ("homozygous", "heterozygous", "unknown"):
-        raise CareInputError("partner_zygosity", f"{partner_zygosity!r} is not one of: homozygous, heterozygous, unknown")
+        raise CareInputError("partner_zygosity",
+                             f"{partner_zygosity!r} is not one of: homozygous, heterozygous, unknown")
     if fetal_rhd not in (None, "positive", "negative", "inconclusive"):
         raise CareInputError("fetal_rhd", f"{fetal_rhd!r} is not one of: positive, negative, inconclusive")
     basis = partner_rhd

@@ -11,7 +11,7 @@ from dataclasses import dataclass
 from datetime import date, datetime, timedelta, timezone, tzinfo
 
 from clinic.care.errors import CareInputError, require_range
-from clinic.care.ga import format_ga, parse_ga
+from clinic.records.values import format_ga, parse_ga
 
 # Naegele's rule as ACOG Committee Opinion 700 (2017) applies it: EDD = LMP + 280 days.
 PREGNANCY_DAYS = 280
@@ -150,7 +150,9 @@ def choose_dating(*, lmp=None, scan_on=None, scan_crl_mm=None, scan_ga_days=None
     if lmp_edd is None and scan_edd is None:
         raise CareInputError("lmp", "no dating: give the LMP, a dating scan (CRL or GA), or the agreed EDD")
     if scan_edd is None:
+        assert lmp_edd is not None  # one of the two was set (checked above)
         return Dating(lmp_edd, "lmp", "dated by the LMP (no dating scan)", source, lmp_edd, None, None)
+    assert sga is not None  # a scan EDD is only made from a scan GA
     how = f"CRL {scan_crl_mm:g} mm" if scan_crl_mm is not None else f"GA {format_ga(sga)} by scan"
     if lmp_edd is None:
         return Dating(scan_edd, "scan", f"dated by the scan ({how}; no LMP)", source, None, scan_edd, None)
@@ -159,6 +161,7 @@ def choose_dating(*, lmp=None, scan_on=None, scan_crl_mm=None, scan_ga_days=None
                       lmp_edd, scan_edd, diff)
     if rule == "lmp-preferred":
         return Dating(lmp_edd, "lmp", "dated by the LMP", source, lmp_edd, scan_edd, diff)
+    assert diff is not None  # both EDDs are known from here on
     # ACOG CO 700 Table 1 reads the GA range by the LMP at the time of the scan (from memory).
     lga = (s_on - _as_date(lmp, "lmp")).days
     limit = redate_threshold_days(max(lga, 0), thresholds)

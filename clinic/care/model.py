@@ -1,34 +1,40 @@
-"""What a plan is made of: CareContext (facility facts), PlanItem, Alert, Plan."""
+"""What a plan is made of: Product and CareContext (facility facts), PlanItem, Alert, Plan."""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
 from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
-from clinic.config import Product
+from clinic.care.codes import CATEGORIES, PATHWAYS, SEVERITIES, STATES
 from clinic.records.schema import IU_PER_UG
-from clinic.records.validate import utc_text
+from clinic.records.values import utc_text
 
-STATES = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
-CATEGORIES = ("typing", "screen", "routine", "event", "postpartum", "birth", "surveillance")
-PATHWAYS = ("prophylaxis", "not-needed", "surveillance", "retest", "untyped", "ended")
-SEVERITIES = ("danger", "warning", "info")
+__all__ = ["CATEGORIES", "PATHWAYS", "SEVERITIES", "STATES", "Alert", "CareContext", "Plan", "PlanItem"]
+
+
+@dataclass(frozen=True)
+class Product:
+    """An anti-D product the facility stocks (``[[stock.products]]`` of the settings)."""
+
+    name: str
+    vial_iu: int
+    routes: tuple[str, ...] = ("IM",)
+
+    @property
+    def vial_ug(self) -> float:
+        return self.vial_iu / IU_PER_UG
 
 
 @dataclass(frozen=True)
 class CareContext:
     """Facility facts the rules need: population RhD-negative frequency, default maternal
-    blood volume, stocked products, and the facility time zone (for days and GA)."""
+    blood volume, stocked products, and the facility time zone (for days and GA).
+    An installation's is built from its settings by ``clinic.care_inputs``."""
 
     rhd_negative_frequency: float = 0.15
     maternal_blood_volume_ml: float = 5000.0
     products: tuple[Product, ...] = ()
     tz: tzinfo = timezone.utc
-
-    @classmethod
-    def from_settings(cls, settings) -> "CareContext":
-        return cls(settings.rhd_negative_frequency, settings.maternal_blood_volume_ml,
-                   tuple(settings.products), settings.tz)
 
 
 def _dt(v):

@@ -16,8 +16,8 @@ from importlib import resources
 from typing import Any, Mapping
 
 from clinic.care.errors import ProfileError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS
+from clinic.records.values import GAFormatError, format_ga, parse_ga
 
 PROFILE_DIR = "profiles"
 
@@ -371,7 +371,8 @@ def _validate(data: dict[str, Any]) -> None:
         raise ProfileError(f"profile {pid}: surveillance Hb thresholds must fall mild >= moderate >= severe")
     fm = data["fmh"]
     if fm["rule"] == "vials-per-30ml" and (fm["whole_blood_ml_per_vial"] <= 0 or fm["vial_dose_iu"] < 1):
-        raise ProfileError(f"profile {pid}: fmh.rule vials-per-30ml needs whole_blood_ml_per_vial and vial_dose_iu above 0")
+        raise ProfileError(f"profile {pid}: fmh.rule vials-per-30ml needs whole_blood_ml_per_vial "
+                           f"and vial_dose_iu above 0")
     if fm["rule"] == "iu-per-ml" and fm["iu_per_ml_red_cells_im"] <= 0:
         raise ProfileError(f"profile {pid}: fmh.rule iu-per-ml needs iu_per_ml_red_cells_im above 0")
 

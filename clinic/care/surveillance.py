@@ -7,16 +7,22 @@ suggestion with its source, for a specialist to decide.
 from __future__ import annotations
 
 import math
-from datetime import date, timedelta
+from datetime import date, datetime, timedelta
+from typing import TYPE_CHECKING, Any
 
 from clinic.care import calc
-from clinic.records.validate import parse_utc
+from clinic.care.codes import AlertCode, ItemCode
+from clinic.records.values import parse_utc
+
+if TYPE_CHECKING:
+    from clinic.care.planning.core import Planner
+    from clinic.care.protocol import Profile
 
 # Alert severity for the fetal anaemia class of an MCA-PSV or fetal Hb result.
 ANAEMIA_ALERT_SEVERITY = {"none": "info", "mild": "warning", "moderate": "danger", "severe": "danger"}
 
 
-def antibody_risk(name: str, titre, iu_ml, profile) -> dict:
+def antibody_risk(name: str, titre: int | None, iu_ml: float | None, profile: Profile) -> dict[str, Any]:
     """Is this antibody level critical (refer)? By quantitation where the profile uses it, else titre."""
     s = profile.get("surveillance")
     crit = s["critical_titre"].get(name, s["critical_titre"]["other"])
@@ -49,20 +55,20 @@ def titre_rise(previous: int, latest: int, dilutions: int) -> bool:
     return latest > 0 and previous > 0 and math.log2(latest / previous) >= dilutions - 1e-9
 
 
-def surveillance_items(pl) -> None:
+def surveillance_items(pl: Planner) -> None:
+    """Titres until a critical level, then referral and MCA Doppler; alerts on every result."""
     p, tz, now = pl.p, pl.tz, pl.now
     s = p.get("surveillance")
     src = p.section_source("surveillance")
     findings = [f for f in (pl.ab.findings or []) if f["origin"] == "immune"]
     if not findings:
         return
-    screens = {x["id"]: x for x in pl.h.of("screen")}
     by_ab: dict[str, list[dict]] = {}
     for f in findings:
         by_ab.setdefault(f["antibody"], []).append(f)
-    critical_at = None
+    critical_at: datetime | None = None
     critical_ids: list[str] = []
-    last_sample = None
+    last_sample: datetime | None = None
     for name, fs in sorted(by_ab.items()):
         fs.sort(key=lambda f: (f["sampled_at"], f["screen_id"]))
         latest = fs[-1]
@@ -78,13 +84,13 @@ def surveillance_items(pl) -> None:
                     critical_at = ft
                 critical_ids.append(f["screen_id"])
                 break
-        pl.alert("antibody-found" if not risk["critical"] else "antibody-critical",
+        pl.alert(AlertCode.ANTIBODY_FOUND if not risk["critical"] else AlertCode.ANTIBODY_CRITICAL,
                  "warning" if not risk["critical"] else "danger", risk["text"], src, [latest["screen_id"]])
         titres = [(f["sampled_at"], f["titre"], f["screen_id"]) for f in fs if f.get("titre")]
         if len(titres) >= 2:
             (_, a, ida), (_, b, idb) = titres[-2], titres[-1]
             if titre_rise(a, b, s["significant_rise_dilutions"]):
-                pl.alert("titre-rise", "warning",
+                pl.alert(AlertCode.TITRE_RISE, "warning",
                          f"{name} titre rose from 1:{a} to 1:{b} ({int(round(math.log2(b / a)))} dilutions): a rise of "
                          f"{s['significant_rise_dilutions']} dilutions or more is significant — discuss with fetal "
                          f"medicine", src, [ida, idb])
@@ -98,51 +104,52 @@ def surveillance_items(pl) -> None:
                       max(change, last_sample + timedelta(days=s["titre_interval_days_late"])))
         else:
             due = last_sample + timedelta(days=s["titre_interval_days_late"])
-        it = pl.add(code="surveillance-titre", category="surveillance", title="Repeat antibody titre / quantitation",
-                    state="due", due=due, opens=due - timedelta(days=3), closes=due + timedelta(days=7),
-                    late_until=None, reason="", source=src)
+        opens, closes = due - timedelta(days=3), due + timedelta(days=7)
+        it = pl.add(ItemCode.SURVEILLANCE_TITRE, "Repeat antibody titre / quantitation", "due", "", src,
+                    due=due, opens=opens, closes=closes, late_until=None)
         if born:
             it.state, it.reason = "not-needed", "the baby is born; follow the baby for HDFN"
         else:
-            it.state = _open_state(now, it.opens, it.closes)
+            it.state = _open_state(now, opens, closes)
             it.reason = (f"repeat every {s['titre_interval_days_early'] // 7} weeks until "
                          f"{p.get('surveillance.interval_change_ga')}, then every "
-                         f"{s['titre_interval_days_late'] // 7} weeks (last sample {last_sample.astimezone(tz):%Y-%m-%d})")
+                         f"{s['titre_interval_days_late'] // 7} weeks "
+                         f"(last sample {last_sample.astimezone(tz):%Y-%m-%d})")
     elif critical_at is not None:
-        it = pl.add(code="surveillance-referral", category="surveillance", title="Referral to fetal medicine",
-                    state="due", due=critical_at, opens=critical_at, closes=critical_at + timedelta(days=7),
-                    late_until=None, reason="critical antibody level: refer to a fetal medicine unit (common practice: "
-                                            "within a week)", source=src)
+        closes = critical_at + timedelta(days=7)
+        it = pl.add(ItemCode.SURVEILLANCE_REFERRAL, "Referral to fetal medicine", "due",
+                    "critical antibody level: refer to a fetal medicine unit (common practice: within a week)", src,
+                    due=critical_at, opens=critical_at, closes=closes, late_until=None)
         refs = [r for r in pl.h.of("referral")
                 if date.fromisoformat(r["referred_on"]) >= critical_at.astimezone(tz).date()]
         if refs:
-            it.state, it.done_record_id = "done", refs[0]["id"]
-            it.done_at = pl.h.time[refs[0]["id"]]
-            it.timeliness = "on-time" if it.done_at <= it.closes else "late"
+            done_at = pl.h.time[refs[0]["id"]]
+            it.state, it.done_record_id, it.done_at = "done", refs[0]["id"], done_at
+            it.timeliness = "on-time" if done_at <= closes else "late"
             it.reason = f"referred to {refs[0].get('to_facility')}"
         elif born:
             it.state, it.reason = "not-needed", "the baby is born"
         else:
-            it.state = _open_state(now, it.opens, it.closes)
+            it.state = _open_state(now, critical_at, closes)
         # titres are no longer the guide once critical
-        pl.add(code="surveillance-titre", category="surveillance", title="Repeat antibody titre / quantitation",
-               state="not-needed", reason="the critical level is reached: MCA Doppler, not titres, guides care",
-               source=src)
+        pl.add(ItemCode.SURVEILLANCE_TITRE, "Repeat antibody titre / quantitation", "not-needed",
+               "the critical level is reached: MCA Doppler, not titres, guides care", src)
         opens = max(critical_at, pl.at_ga(p.ga("surveillance.doppler_from_ga")))
         dops = [d for d in pl.h.of("doppler") if parse_utc(d["measured_at"]) >= critical_at]
         interval = timedelta(days=s["doppler_interval_days"])
         due = parse_utc(dops[-1]["measured_at"]) + interval if dops else opens
-        dit = pl.add(code="surveillance-doppler", category="surveillance", title="MCA Doppler (peak systolic velocity)",
-                     state="due", due=due, opens=min(due, max(opens, due - timedelta(days=2))),
-                     closes=due + interval, late_until=None, reason="", source=src)
+        dopens, dcloses = min(due, max(opens, due - timedelta(days=2))), due + interval
+        dit = pl.add(ItemCode.SURVEILLANCE_DOPPLER, "MCA Doppler (peak systolic velocity)", "due", "", src,
+                     due=due, opens=dopens, closes=dcloses, late_until=None)
         if born:
             dit.state, dit.reason = "not-needed", "the baby is born"
         else:
-            dit.state = _open_state(now, dit.opens, dit.closes)
+            dit.state = _open_state(now, dopens, dcloses)
             dit.reason = (f"MCA-PSV every {s['doppler_interval_days']} days from "
                           f"{p.get('surveillance.doppler_from_ga')} (suggestion for the fetal medicine team)")
         if not born:
-            pl.alert("delivery-timing", "info", f"suggestion for the specialist: {s['delivery_text']}", src, critical_ids[:1])
+            pl.alert(AlertCode.DELIVERY_TIMING, "info", f"suggestion for the specialist: {s['delivery_text']}", src,
+                     critical_ids[:1])
     # latest Doppler and fetal blood results
     dops = pl.h.of("doppler")
     if dops:
@@ -152,17 +159,17 @@ def surveillance_items(pl) -> None:
         if calc.MCA_GA_MIN_DAYS <= ga <= calc.MCA_GA_MAX_DAYS:
             r = calc.mca_result(d["mca_psv_cm_s"], ga, p)
             sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
-            pl.alert("mca-psv", sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom']:.2f} MoM "
+            pl.alert(AlertCode.MCA_PSV, sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom']:.2f} MoM "
                                      f"(median {r['median_cm_s']:.1f}; {r['severity']}): {r['suggestion']}",
                      r["source"], [d["id"]])
-            it = pl.item("surveillance-doppler")
-            if it is not None and it.state != "not-needed":
-                it.reason += f"; last {r['mom']:.2f} MoM — {r['suggestion']}"
-                if r["mom"] >= p.get("surveillance.mca_mom_mild") and it.due is not None:
+            dop = pl.item(ItemCode.SURVEILLANCE_DOPPLER)
+            if dop is not None and dop.state != "not-needed" and dop.opens is not None:
+                dop.reason += f"; last {r['mom']:.2f} MoM — {r['suggestion']}"
+                if r["mom"] >= p.get("surveillance.mca_mom_mild") and dop.due is not None:
                     # From the mild threshold up the next Doppler is due within one interval,
                     # not within the usual two: the deadline is the due date itself.
-                    it.closes = it.due
-                    it.state = _open_state(now, it.opens, it.closes)
+                    dop.closes = dop.due
+                    dop.state = _open_state(now, dop.opens, dop.due)
     fbs = [f for f in pl.h.of("fbs") if f.get("hb_g_dl") is not None]
     if fbs:
         f = fbs[-1]
@@ -171,16 +178,16 @@ def surveillance_items(pl) -> None:
         if calc.HB_GA_MIN_DAYS <= ga <= calc.HB_GA_MAX_DAYS:
             r = calc.fetal_hb_result(f["hb_g_dl"], ga, p)
             sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
-            pl.alert("fetal-hb", sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom']:.2f} MoM "
+            pl.alert(AlertCode.FETAL_HB, sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom']:.2f} MoM "
                                       f"({r['severity']} anaemia by Mari 2000 classes): for the fetal medicine team",
                      r["source"], [f["id"]])
-    if born:
-        pl.alert("neonatal-follow-up", "warning",
+    if born and pl.birth:
+        pl.alert(AlertCode.NEONATAL_FOLLOW_UP, "warning",
                  "maternal red cell antibodies: check the baby's DAT, Hb and bilirubin after birth (HDFN risk)",
                  src, [pl.birth["id"]])
 
 
-def _open_state(now, opens, closes) -> str:
+def _open_state(now: datetime, opens: datetime, closes: datetime) -> str:
     if now < opens:
         return "not-yet-due"
     if now <= closes:

@@ -10,15 +10,24 @@ from datetime import date, datetime, timezone
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, resolve_data
 from clinic.care import calc
-from clinic.care.dating import (RF_INTERCEPT, RF_SLOPE, edd_from_lmp, edd_naegele_calendar, ga_days_from_crl, ga_from_crl,
-                                 ga_on)
+from clinic.care.dating import (
+    RF_INTERCEPT,
+    RF_SLOPE,
+    edd_from_lmp,
+    edd_naegele_calendar,
+    ga_days_from_crl,
+    ga_from_crl,
+    ga_on,
+)
 from clinic.care.errors import CareError, CareInputError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
+from clinic.care.model import Product
 from clinic.care.protocol import list_profiles, load_profile
-from clinic.config import ConfigError, Product, load_settings
+from clinic.care_inputs import care_inputs
+from clinic.cli.common import clean_errors, data_option, emit_json, resolve_data
+from clinic.config import ConfigError, load_settings
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS, GA_MIN_DAYS
+from clinic.records.values import GAFormatError, format_ga, parse_ga
 
 ERRORS = (CareError, GAFormatError, ConfigError)
 DEFAULT_PROFILE = "bsh-2014"
@@ -33,14 +42,11 @@ def _settings(data):
 
 
 def _profile(profile_id, data):
+    """--profile, else the facility's; the facility's comes with its local overrides."""
     s = _settings(data)
-    if profile_id is None:
-        if s is not None:
-            return load_profile(s.profile, overrides=s.profile_overrides)
-        return load_profile(DEFAULT_PROFILE)
-    if s is not None and s.profile == profile_id:
-        return load_profile(profile_id, overrides=s.profile_overrides)
-    return load_profile(profile_id)
+    if s is not None and profile_id in (None, s.profile):
+        return care_inputs(s)[0]
+    return load_profile(DEFAULT_PROFILE if profile_id is None else profile_id)
 
 
 def _ga(text, field="ga") -> int:
@@ -185,7 +191,8 @@ def fetal_hb_cmd(hb, ga, profile_id, data, as_json):
 @calc_group.command("fmh")
 @click.option("--fetal-cells", type=int, default=None, help="Fetal cells counted (Kleihauer-Betke).")
 @click.option("--cells-counted", type=int, default=None, help="Total cells counted.")
-@click.option("--percent", "percent", type=float, default=None, help="Fetal cells % (flow cytometry), instead of counts.")
+@click.option("--percent", "percent", type=float, default=None,
+              help="Fetal cells % (flow cytometry), instead of counts.")
 @click.option("--maternal-volume-ml", type=float, default=None,
               help="Maternal blood volume, mL (default: the facility's, else 5000).")
 @click.option("--height-cm", type=float, default=None, help="Estimate the blood volume from height (Nadler 1962)...")
@@ -218,8 +225,9 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
                         maternal_volume_ml=maternal_volume_ml, route=route, vial_sizes_iu=sizes)
     r["maternal_volume_basis"] = basis
     r["profile"] = prof.id
-    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal red "
-             f"cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
+    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = "
+             f"{r['fetal_red_cells_ml']:.1f} mL fetal red cells "
+             f"(maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
              f"anti-D needed ({route}): {_dose_text(r['dose_iu'])}  [{r['working']}]"]
     for v in r["vials_by_product"]:
         lines.append(f"  {v['vials']} vial(s) of {_dose_text(v['vial_iu'])} = {_dose_text(v['total_iu'])}")
@@ -314,8 +322,16 @@ def iut_cmd(efw_g, hc_cm, ac_cm, fl_cm, fetal_hct, target_hct, donor_hct, as_jso
             raise CareInputError("efw_g", "give --efw-g, or --hc-cm, --ac-cm and --fl-cm to estimate it (Hadlock 1985)")
         efw_g = calc.hadlock_efw(hc_cm, ac_cm, fl_cm)
     r = calc.iut_volume(efw_g, fetal_hct, target_hct, donor_hct)
-    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> {target_hct:g} %, "
-                      f"donor {donor_hct:g} %)", f"  {r['suggestion']}", f"  source: {r['source']}"])
+    _out(
+        as_json,
+        r,
+        [
+            f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> {target_hct:g} %, "
+            f"donor {donor_hct:g} %)",
+            f"  {r['suggestion']}",
+            f"  source: {r['source']}",
+        ],
+    )
 
 
 def register(cli: click.Group) -> None:

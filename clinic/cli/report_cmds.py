@@ -11,6 +11,7 @@ import click
 
 from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
 from clinic.config import ConfigError
+from clinic.printing.errors import PrintError
 from clinic.records.validate import ValidationError
 from clinic.reports.bundle import BundleError
 from clinic.reports.coverage import ReportError
@@ -19,7 +20,7 @@ from clinic.signing.errors import SigningError
 from clinic.store.errors import StoreError
 
 LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, BundleError, ReportError,
-                  MonthFormatError, OSError)
+                  MonthFormatError, PrintError, OSError)
 FORMATS = ("csv", "pdf", "json", "fhir", "fhir-records", "follow-up")
 
 
@@ -156,7 +157,7 @@ def stock_add_cmd(data, move, product, vial_iu, lot, expiry, vials, at, by, note
            "lot_expiry": expiry, "vials": vials}
     if notes:
         raw["notes"] = notes
-    rec = store.create("stock", raw, by=by, facility=store.settings.facility_id, now=now)
+    rec = store.create("stock", raw, by=by, facility=store.settings.facility_id, now=now).record
     click.echo(f"Recorded {move} of {vials} vial(s) of lot {lot} ({rec['id']}).")
 
 

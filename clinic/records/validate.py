@@ -9,8 +9,8 @@ import math
 from datetime import date, datetime, timedelta, timezone, tzinfo
 from typing import Any, Mapping
 
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import IU_PER_UG, KINDS, Field
+from clinic.records.values import GAFormatError, format_ga, parse_ga, utc_text
 
 # A phone's clock may run a little ahead of the laptop's.
 CLOCK_SKEW = timedelta(minutes=10)
@@ -29,22 +29,13 @@ class UnknownKind(ValidationError):
     """A record kind the schema does not describe."""
 
 
-def utc_text(dt: datetime) -> str:
-    """A timezone-aware datetime as stored: UTC, seconds, trailing Z."""
-    return dt.astimezone(timezone.utc).replace(microsecond=0).strftime("%Y-%m-%dT%H:%M:%SZ")
-
-
-def parse_utc(text: str) -> datetime:
-    """A stored datetime string back to an aware UTC datetime."""
-    return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
-
-
 def _empty(v: Any) -> bool:
     return v is None or (isinstance(v, str) and v.strip() == "") or (isinstance(v, (list, tuple)) and not v)
 
 
 def _range_text(f: Field) -> str:
     if f.type == "ga":
+        assert f.min is not None and f.max is not None  # every GA field has both limits (schema._ga)
         return f"{format_ga(int(f.min))} to {format_ga(int(f.max))} weeks+days"
     if f.min is not None and 0 < f.min < 0.001:
         # A "positive number" field: its tiny minimum is not a value anyone should read.
@@ -94,6 +85,7 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
             days = parse_ga(v)  # an int is days (JSON); text is weeks+days or weeks (forms)
         except GAFormatError as e:
             raise ValueError(str(e)) from None
+        assert f.min is not None and f.max is not None  # every GA field has both limits (schema._ga)
         if days < f.min or days > f.max:
             raise ValueError(f"{format_ga(days)} is outside the allowed range {_range_text(f)}")
         return days
@@ -149,7 +141,8 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
             # Local wall-clock time at the facility.
             dt = dt.replace(tzinfo=tz)
         if f.not_future and dt > now + CLOCK_SKEW:
-            raise ValueError(f"{dt.astimezone(tz).strftime('%Y-%m-%d %H:%M')} is in the future; the latest allowed is now")
+            when = dt.astimezone(tz).strftime("%Y-%m-%d %H:%M")
+            raise ValueError(f"{when} is in the future; the latest allowed is now")
         if dt.year < 1900:
             raise ValueError("is before 1900")
         return utc_text(dt)

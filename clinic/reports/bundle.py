@@ -34,7 +34,8 @@ from typing import Iterable
 import cbor2
 
 from clinic.records.schema import KINDS, SCHEMA_VERSION
-from clinic.records.validate import ValidationError, parse_utc, utc_text, validate_record
+from clinic.records.validate import ValidationError, validate_record
+from clinic.records.values import parse_utc, utc_text
 from clinic.store.errors import Conflict, StoreError
 
 MAGIC = b"RHLB"
@@ -163,15 +164,15 @@ def _split(data: bytes, name: str) -> tuple[bytes, bytes]:
 def read_bundle(data: bytes, trust, *, name: str = "bundle", now: datetime | None = None,
                 check=None) -> Bundle:
     """Check everything about a bundle and return its records, or raise BundleRefused."""
-    from clinic.signing.cose import verify1
     from clinic.signing.errors import CoseFormatError
 
     now = now or datetime.now(timezone.utc)
     signed, body = _split(data, name)
     try:
-        v = verify1(signed, trust, on_date=now.date())
+        v = trust.verify(signed, on_date=now.date())
     except CoseFormatError as e:
-        raise BundleUnreadable(f"{name}: the signed header cannot be read ({e}); copy it again from the clinic") from None
+        raise BundleUnreadable(f"{name}: the signed header cannot be read ({e}); "
+                               f"copy it again from the clinic") from None
     if v.state == "unknown-issuer":
         raise BundleUntrusted(f"{name} is refused: {v.reason or 'the signer is not in the trust list'}. "
                               f"Add the clinic's key to the district trust list (compare its fingerprint "

@@ -1,7 +1,8 @@
 """From the store to the report's inputs: one ``Case`` per pregnancy, planned by the care engine.
 
 The store is read once (``Store.iter_records``); each pregnancy's entries are grouped and
-handed to ``clinic.care.plan_pregnancy`` with its facility's profile (see ``planners``) and one fixed
+handed to ``clinic.care.plan_pregnancy`` with its facility's profile and care context (see ``planners``;
+both built by ``clinic.care_inputs.build_inputs``) and one fixed
 ``now`` (the moment the report is made), so every month of a report and of its trend is
 judged from the same plans.
 """
@@ -46,23 +47,20 @@ class Planner:
 
 
 def _planner(care: dict, source: str, where: str) -> Planner:
-    from zoneinfo import ZoneInfo
-
-    from clinic.care import CareContext, load_profile
-    from clinic.config import Product
-
+    """A planner from a care header (``bundle.care_of``: a facility's settings as its bundles carry them)."""
+    from clinic.care import Product
     from clinic.care.errors import CareError
+    from clinic.care_inputs import build_inputs
 
+    products = tuple(Product(p["name"], int(p["vial_iu"]), tuple(p.get("routes", ["IM"])))
+                     for p in care.get("products", []))
     try:
-        profile = load_profile(care["profile"], overrides=care.get("overrides") or {})
+        profile, ctx = build_inputs(care["profile"], care.get("overrides") or {}, timezone=care["timezone"],
+                                    products=products, rhd_negative_frequency=care["rhd_negative_frequency"],
+                                    maternal_blood_volume_ml=care["maternal_blood_volume_ml"])
     except CareError as e:
         raise ReportError(f"{where} follows protocol profile {care.get('profile')!r}, which this rhledger "
                           f"cannot load ({e}); update rhledger on this laptop") from None
-    products = tuple(Product(p["name"], int(p["vial_iu"]), tuple(p.get("routes", ["IM"])))
-                     for p in care.get("products", []))
-    ctx = CareContext(rhd_negative_frequency=float(care["rhd_negative_frequency"]),
-                      maternal_blood_volume_ml=float(care["maternal_blood_volume_ml"]),
-                      products=products, tz=ZoneInfo(care["timezone"]))
     overrides = ", ".join(f"{k} = {v}" for k, v in sorted(dict(care.get("overrides") or {}).items()))
     label = f"{profile.id} {profile.version}" + (f" (local changes: {overrides})" if overrides else "")
     return Planner(profile, ctx, label, source)
@@ -173,7 +171,7 @@ def load_inputs(store, settings, *, now: datetime, first_month: Month | None = N
     else:
         plans = [_plan_one(own, per, now, job) for job in jobs]
     cases = []
-    for (woman, preg, ents), plan in zip(jobs, plans):
+    for (woman, preg, ents), plan in zip(jobs, plans, strict=True):
         cases.append(Case(woman, preg, [e for e in ents if not e.get("voided")], plan))
     cases.sort(key=lambda c: (c.facility, c.pregnancy.get("booked_on", ""), c.id))
     labels = {f: used.get(f, (per.get(f) or own).label) for f in facilities}

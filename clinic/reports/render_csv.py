@@ -5,36 +5,21 @@ denominator is 0 or the indicator is a count. No names: follow-up lists are sepa
 (``follow_up_csv``) and only for roles that may see names.
 
 Every text cell that a spreadsheet would read as a formula (it begins with =, +, -, @, a
-tab or a carriage return) is written with a leading apostrophe (``safe_cell``), so a name
-or a note typed at a clinic can never run as a formula on the district's computer; a phone
-number "+000 ..." then reads '+000 ... and shows as typed. Rows end with CRLF (RFC 4180),
-so a cell holding a carriage return is quoted and cannot start a row of its own.
+tab or a carriage return) is written with a leading apostrophe and rows end with CRLF
+(clinic.records.csv_cells), so nothing typed at a clinic runs as a formula on the district's
+computer.
 """
 from __future__ import annotations
 
 import csv
 import io
 
+from clinic.records.csv_cells import LINE_END, safe_cell, safe_dict, safe_row
 from clinic.reports.coverage import DISTRICT, INDICATORS, MonthReport
 from clinic.reports.month import Month
 
 COLUMNS = ("month", "facility", "facility_name", "section", "indicator", "title",
            "numerator", "denominator", "percentage")
-
-
-LINE_END = "\r\n"
-FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
-
-
-def safe_cell(v):
-    """A CSV cell that a spreadsheet will not evaluate (numbers stay numbers)."""
-    if isinstance(v, str) and v.startswith(FORMULA_STARTS):
-        return "'" + v
-    return v
-
-
-def _row(values) -> list:
-    return [safe_cell(v) for v in values]
 
 
 def _num(v):
@@ -51,7 +36,7 @@ def coverage_csv(reports: dict[Month, MonthReport] | list[MonthReport]) -> str:
         for fac in rep.columns:
             for ind in INDICATORS:
                 c = rep.cell(fac, ind.id)
-                w.writerow(_row([str(rep.month), "district" if fac == DISTRICT else fac, rep.facility_name(fac),
+                w.writerow(safe_row([str(rep.month), "district" if fac == DISTRICT else fac, rep.facility_name(fac),
                             ind.section, ind.id, ind.title, c.numerator, _num(c.denominator),
                             _num(c.percentage)]))
     return out.getvalue()
@@ -81,7 +66,7 @@ def follow_up_csv(report: MonthReport, women: dict[str, dict], tz) -> str:
     w = csv.DictWriter(out, FOLLOW_UP_COLUMNS, lineterminator=LINE_END)
     w.writeheader()
     for row in follow_up_rows(report, women, tz):
-        w.writerow({k: safe_cell(v) for k, v in row.items()})
+        w.writerow(safe_dict(row))
     return out.getvalue()
 
 

@@ -20,6 +20,7 @@ from __future__ import annotations
 import uuid
 from datetime import datetime, time, timezone, tzinfo
 
+from clinic.records.choices import event_words
 from clinic.reports.coverage import DISTRICT, INDICATORS, Case, MonthReport
 
 LOINC = "http://loinc.org"
@@ -214,7 +215,8 @@ def _screen(r: dict, subject: str) -> list[dict]:
 
 def _fetal(r: dict, subject: str) -> dict:
     return _obs(r, subject, _own("fetal-rhd-cfdna", "Fetal RHD genotype from cell-free DNA in maternal plasma"),
-                _day(r["sampled_on"]), valueCodeableConcept=_own(f"fetal-rhd-{r['result']}", f"Fetal RHD {r['result']}"))
+                _day(r["sampled_on"]),
+                valueCodeableConcept=_own(f"fetal-rhd-{r['result']}", f"Fetal RHD {r['result']}"))
 
 
 def _fmh(r: dict, subject: str) -> dict:
@@ -242,14 +244,15 @@ def _baby(r: dict, subject: str) -> dict:
 
 def _event(r: dict, subject: str) -> dict:
     kind = r.get("event_kind", "other")
+    words = event_words(kind)
     if kind in PROCEDURE_EVENTS:
-        code = _cc(SNOMED, *SCT_PROCEDURE[kind]) if kind in SCT_PROCEDURE else _own(kind, kind.replace("-", " "))
-        code.setdefault("text", kind.replace("-", " "))
+        code = _cc(SNOMED, *SCT_PROCEDURE[kind]) if kind in SCT_PROCEDURE else _own(kind, words)
+        code.setdefault("text", words)
         return {"resourceType": "Procedure", "id": r["id"], "status": "completed", "code": code,
                 "subject": {"reference": subject}, "performedDateTime": _fhir_dt(r["occurred_at"]),
                 "note": [{"text": "Potentially sensitising event for an RhD-negative woman"}]}
     o = _obs(r, subject, _own("sensitising-event", "Potentially sensitising event in pregnancy"),
-             _fhir_dt(r["occurred_at"]), valueCodeableConcept=_own(kind, kind.replace("-", " ")))
+             _fhir_dt(r["occurred_at"]), valueCodeableConcept=_own(kind, words))
     o["category"] = [_cc(OBS_CATEGORY, "exam", "Exam")]
     return o
 

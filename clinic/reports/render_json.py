@@ -9,8 +9,15 @@ from __future__ import annotations
 
 import json
 
-from clinic.reports.coverage import (ATTRIBUTION, CAUTION, DISTRICT, INDICATORS, NULL_PERCENT,
-                                     TIME_ZONE_NOTE, MonthReport)
+from clinic.reports.coverage import (
+    ATTRIBUTION,
+    CAUTION,
+    DISTRICT,
+    INDICATORS,
+    NULL_PERCENT,
+    TIME_ZONE_NOTE,
+    MonthReport,
+)
 from clinic.reports.month import Month
 
 FORMAT = "rhledger-coverage"

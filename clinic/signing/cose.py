@@ -7,27 +7,23 @@ header is the deterministic CBOR map ``{1: -8, 4: kid}``, and the signature cove
 ``Sig_structure`` ``["Signature1", protected, h'', payload]`` (external AAD empty).
 
 Used for patient-held cards, the district trust list, and district bundles: the payload is
-opaque here.
+opaque here, and so is who the signer is: this module checks a signature against a public
+key it is given; which keys to believe, and for which dates, is ``clinic.signing.trust``
+(``TrustList.verify``).
 """
 from __future__ import annotations
 
 from dataclasses import dataclass
-from datetime import date, datetime, timezone
-from typing import TYPE_CHECKING, Any
 
 import cbor2
 
 from clinic.signing.errors import CoseFormatError
 from clinic.signing.keys import SigningKey, verify_raw
 
-if TYPE_CHECKING:  # pragma: no cover
-    from clinic.signing.trust import TrustEntry, TrustList
-
 COSE_SIGN1_TAG = 18
 HDR_ALG = 1
 HDR_KID = 4
 ALG_EDDSA = -8
-STATES = ("trusted", "unknown-issuer", "altered")
 # A message larger than this is not something we made (cards are < 2 kB, lists < 1 MB).
 MAX_MESSAGE = 4 * 1024 * 1024
 
@@ -45,21 +41,9 @@ class CoseSign1:
     def to_be_signed(self) -> bytes:
         return _sig_structure(self.protected, self.payload)
 
-
-@dataclass(frozen=True)
-class Verified:
-    """What verification found. ``state`` is one of ``STATES``; ``reason`` says it in words."""
-
-    payload: bytes
-    state: str
-    kid: bytes
-    facility_id: str | None
-    entry: Any = None  # the TrustEntry of the signer when the kid is known
-    reason: str = ""
-
-    @property
-    def trusted(self) -> bool:
-        return self.state == "trusted"
+    def signed_by(self, public_raw: bytes) -> bool:
+        """Whether the raw Ed25519 public key ``public_raw`` made this signature."""
+        return verify_raw(public_raw, self.signature, self.to_be_signed())
 
 
 def _sig_structure(protected: bytes, payload: bytes) -> bytes:
@@ -128,47 +112,9 @@ def parse1(message: bytes) -> CoseSign1:
     return CoseSign1(protected=protected, payload=payload, signature=signature, kid=kid, alg=alg)
 
 
-def _as_date(on_date) -> date:
-    if on_date is None:
-        return datetime.now(timezone.utc).date()
-    if isinstance(on_date, datetime):
-        return on_date.date()
-    if isinstance(on_date, date):
-        return on_date
-    return date.fromisoformat(str(on_date))
-
-
 def verify_with_public(message: bytes | CoseSign1, public_raw: bytes) -> bytes:
     """The payload when ``message`` is signed by ``public_raw``; CoseFormatError otherwise."""
     msg = message if isinstance(message, CoseSign1) else parse1(message)
-    if not verify_raw(public_raw, msg.signature, msg.to_be_signed()):
+    if not msg.signed_by(public_raw):
         raise CoseFormatError("the signature does not match the key")
     return msg.payload
-
-
-def verify1(message: bytes, trust: "TrustList", on_date=None) -> Verified:
-    """Check a COSE_Sign1 message against the trust list.
-
-    ``trusted``: a key of the trust list valid on ``on_date`` (default today) signed it.
-    ``altered``: the kid is known but no key with it verifies the signature: the bytes were
-    changed or damaged after signing. ``unknown-issuer``: no key with that kid is trusted for
-    that date, so the content cannot be checked. Raises CoseFormatError for non-COSE input.
-    """
-    msg = parse1(message)
-    day = _as_date(on_date)
-    tbs = msg.to_be_signed()
-    known = trust.keys_with_kid(msg.kid)
-    if not known:
-        return Verified(msg.payload, "unknown-issuer", msg.kid, None,
-                        reason="the signing key is not in this installation's trust list")
-    for entry, key in known:
-        if verify_raw(key.public_raw, msg.signature, tbs):
-            if key.valid_on(day):
-                return Verified(msg.payload, "trusted", msg.kid, entry.facility_id, entry,
-                                reason=f"signed by {entry.name} ({entry.facility_id})")
-            return Verified(msg.payload, "unknown-issuer", msg.kid, entry.facility_id, entry,
-                            reason=(f"signed with a key of {entry.facility_id} that the trust list "
-                                    f"accepts only {key.validity_text()}, not on {day.isoformat()}"))
-    entry = known[0][0]
-    return Verified(msg.payload, "altered", msg.kid, entry.facility_id, entry,
-                    reason=f"the signature of {entry.facility_id} does not match the content")

@@ -30,6 +30,10 @@ Import rules (``import_trust_list``), stored under ``<data>/trust/``:
 
 ``load_trust`` re-verifies the stored list against the pin each time and always adds the
 installation's own current and retired keys.
+
+Checking a signed card or bundle against the list is ``TrustList.verify``: it finds the
+signer's key by kid, checks the signature with ``clinic.signing.cose`` and the key's validity
+on the given date, and says ``trusted``, ``unknown-issuer`` or ``altered``.
 """
 from __future__ import annotations
 
@@ -43,11 +47,19 @@ from typing import Any, Iterable, Mapping
 import cbor2
 
 from clinic.signing import cose
-from clinic.signing.errors import (CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError,
-                                   TrustListError)
+from clinic.signing.errors import CoseFormatError, DistrictKeyUnconfirmed, KeyStoreError, TrustListError
 from clinic.signing.files import atomic_write
-from clinic.signing.keys import (KeyInfo, SigningKey, b64, current_key_info, fingerprint_of, kid_of,
-                                 normalise_fingerprint, public_from_b64, retired_keys)
+from clinic.signing.keys import (
+    KeyInfo,
+    SigningKey,
+    b64,
+    current_key_info,
+    fingerprint_of,
+    kid_of,
+    normalise_fingerprint,
+    public_from_b64,
+    retired_keys,
+)
 
 TRUST_DIR = "trust"
 LIST_FILE = "trust-list.cose"
@@ -56,6 +68,18 @@ FORMAT_TAG = "rhledger-trust"
 FORMAT_VERSION = 1
 FACILITY_KINDS = ("clinic", "hospital", "district")
 EPOCH = date(1970, 1, 1)
+STATES = ("trusted", "unknown-issuer", "altered")
+
+
+def _as_date(on_date) -> date:
+    """A date, datetime, ISO text or None (today, UTC) as a date."""
+    if on_date is None:
+        return datetime.now(timezone.utc).date()
+    if isinstance(on_date, datetime):
+        return on_date.date()
+    if isinstance(on_date, date):
+        return on_date
+    return date.fromisoformat(str(on_date))
 
 
 def day_number(d: date) -> int:
@@ -128,6 +152,22 @@ class TrustEntry:
                 "phone": self.phone, "own": self.own, "keys": [k.to_dict() for k in self.keys]}
 
 
+@dataclass(frozen=True)
+class Verified:
+    """What verification found. ``state`` is one of ``STATES``; ``reason`` says it in words."""
+
+    payload: bytes
+    state: str
+    kid: bytes
+    facility_id: str | None
+    entry: TrustEntry | None = None  # the signer's entry when the kid is known
+    reason: str = ""
+
+    @property
+    def trusted(self) -> bool:
+        return self.state == "trusted"
+
+
 @dataclass
 class TrustList:
     """The facilities this installation trusts. Empty apart from itself until a list is imported."""
@@ -143,11 +183,37 @@ class TrustList:
 
     def lookup(self, kid: bytes, on_date=None) -> TrustEntry | None:
         """The facility whose key ``kid`` is valid on ``on_date`` (default today), or None."""
-        day = cose._as_date(on_date)
+        day = _as_date(on_date)
         for e, k in self.keys_with_kid(kid):
             if k.valid_on(day):
                 return e
         return None
+
+    def verify(self, message: bytes | cose.CoseSign1, on_date=None) -> Verified:
+        """Check a COSE_Sign1 message against this list.
+
+        ``trusted``: a key of the list valid on ``on_date`` (default today) signed it.
+        ``altered``: the kid is known but no key with it verifies the signature: the bytes were
+        changed or damaged after signing. ``unknown-issuer``: no key with that kid is trusted for
+        that date, so the content cannot be checked. Raises CoseFormatError for non-COSE input.
+        """
+        msg = message if isinstance(message, cose.CoseSign1) else cose.parse1(message)
+        day = _as_date(on_date)
+        known = self.keys_with_kid(msg.kid)
+        if not known:
+            return Verified(msg.payload, "unknown-issuer", msg.kid, None,
+                            reason="the signing key is not in this installation's trust list")
+        for entry, key in known:
+            if msg.signed_by(key.public_raw):
+                if key.valid_on(day):
+                    return Verified(msg.payload, "trusted", msg.kid, entry.facility_id, entry,
+                                    reason=f"signed by {entry.name} ({entry.facility_id})")
+                return Verified(msg.payload, "unknown-issuer", msg.kid, entry.facility_id, entry,
+                                reason=(f"signed with a key of {entry.facility_id} that the trust list "
+                                        f"accepts only {key.validity_text()}, not on {day.isoformat()}"))
+        entry = known[0][0]
+        return Verified(msg.payload, "altered", msg.kid, entry.facility_id, entry,
+                        reason=f"the signature of {entry.facility_id} does not match the content")
 
     def entry(self, facility_id: str) -> TrustEntry | None:
         for e in self.entries:

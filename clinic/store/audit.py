@@ -63,3 +63,17 @@ class AuditLog:
                 out.append(e)
         out.sort(key=lambda e: (e.get("at", ""), e.get("seq", 0)))
         return out
+
+
+def audit_entry(action: str, record: dict, *, at: str, by: str, changes: dict,
+                reason: str | None = None) -> dict:
+    """The audit entry of one change to ``record`` (as stored after the change)."""
+    entry = {"at": at, "by": by, "action": action, "id": record["id"], "kind": record["kind"],
+             "facility": record["facility"], "woman_id": record.get("woman_id"),
+             "pregnancy_id": record.get("pregnancy_id"), "version": record["version"],
+             "changes": changes}
+    if reason is not None:
+        entry["reason"] = reason
+    if record.get("origin"):
+        entry["origin"] = record["origin"]
+    return entry

@@ -66,16 +66,29 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     warnings = check_modes(data)
     for w in warnings:
         app.logger.warning("rhledger: %s", w)
-    app.extensions["rhledger"] = {"settings": settings, "store": store, "profile": None, "users": users,
+    app.extensions["rhledger"] = {"settings": settings, "store": store, "users": users,
                                   "file_warnings": warnings}
     store.daily_backup_if_due()
 
-    from clinic.web import admin_views, api, auth, db, errors, headers, helpers, pages, records_views, tools_views
+    from clinic.web import (
+        admin_views,
+        api,
+        auth,
+        db,
+        errors,
+        headers,
+        helpers,
+        pages,
+        records_views,
+        stock,
+        tools_views,
+    )
 
     db.init_app(app)
     auth.init_app(app)
     headers.init_app(app)
     helpers.init_app(app)
+    stock.init_app(app)
     errors.init_app(app)
     app.register_blueprint(auth.bp)
     app.register_blueprint(admin_views.bp)
@@ -84,9 +97,10 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     app.register_blueprint(tools_views.bp)
     app.register_blueprint(api.bp)
 
-    from clinic.web import card_views, district_views, setup_views
+    from clinic.web import card_views, district_views, setup_views, supply_views
 
     app.register_blueprint(card_views.bp)
     app.register_blueprint(district_views.bp)
     app.register_blueprint(setup_views.bp)
+    app.register_blueprint(supply_views.bp)
     return app

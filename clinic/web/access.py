@@ -76,6 +76,8 @@ ENDPOINTS: dict[str, object] = {
     "district.import_one": R.BUNDLE_IMPORT,
     "district.export_page": R.BUNDLE_EXPORT,
     "district.export_post": R.BUNDLE_EXPORT,
+    "supply.index": R.STOCK_READ,
+    "supply.download": R.STOCK_READ,
     "admin.users": R.USERS,
     "admin.user_add": R.USERS,
     "admin.user_action": R.USERS,

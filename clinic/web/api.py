@@ -11,7 +11,8 @@ from pathlib import Path
 
 from flask import Blueprint, Response, jsonify, request, url_for
 
-from clinic.records.validate import ValidationError, utc_text
+from clinic.records.validate import ValidationError
+from clinic.records.values import utc_text
 from clinic.web import calcs, worklist
 from clinic.web.auth import csrf_token, current_user, require_kind
 from clinic.web.db import get_settings, get_store, plan_for
@@ -75,14 +76,15 @@ def create():
         body = _body()
         rid = body.get("id")
         require_kind(str(body.get("kind", "")))
-        rec, replay = create_record(str(body.get("kind", "")), body.get("fields") or {}, current_user(),
-                                    record_id=rid, woman_id=body.get("woman_id"),
-                                    pregnancy_id=body.get("pregnancy_id"))
+        res = create_record(str(body.get("kind", "")), body.get("fields") or {}, current_user(),
+                            record_id=rid, woman_id=body.get("woman_id"),
+                            pregnancy_id=body.get("pregnancy_id"))
     except ValidationError as e:
         return _unprocessable(e)
     except Conflict as e:
         return _conflict(e, rid)
-    if replay:
+    rec = res.record
+    if not res.created:
         return jsonify(record=rec, redirect=redirect_for(rec), replay=True), 200
     return jsonify(record=rec, redirect=redirect_for(rec)), 201
 

@@ -10,11 +10,11 @@ from datetime import date
 
 from clinic.care import CAUTION  # noqa: F401 - the caution of the dose calculators (api.py)
 from clinic.care.errors import CareError, CareInputError
-from clinic.care.ga import GAFormatError, format_ga, parse_ga
 from clinic.records.schema import EVENT_KINDS
 from clinic.records.validate import ValidationError
+from clinic.records.values import GAFormatError, format_ga, parse_ga
+from clinic.web.clock import now_local
 from clinic.web.db import get_profile, get_settings
-
 
 
 def _inp(name, label, type="number", *, required=True, min=None, max=None, step="any", choices=(),
@@ -179,7 +179,6 @@ def run_units(args):
 def run_dating(args):
     """EDD and GA today from LMP / dating scan / agreed EDD, by the profile's dating rule."""
     from clinic.care.dating import choose_dating, profile_thresholds
-    from clinic.web.helpers import now_local
 
     prof = get_profile()
     crl = _num(args, "scan_crl_mm", required=False)
@@ -226,11 +225,13 @@ CALCULATORS: dict[str, dict] = {
         _inp("hb_g_dl", "Fetal Hb (g/dL)", min=1, max=25),
         _inp("ga_days", "GA", **GA))},
     "fetal-rhd": {"title": "Chance the baby is RhD positive", "run": run_fetal_rhd, "inputs": (
-        _inp("partner_rhd", "Baby's father RhD", "choice", choices=("positive", "negative", "unknown"), default="unknown"),
+        _inp("partner_rhd", "Baby's father RhD", "choice", choices=("positive", "negative", "unknown"),
+             default="unknown"),
         _inp("partner_zygosity", "Father's RHD zygosity", "choice", choices=("homozygous", "heterozygous", "unknown"),
              default="unknown"),
         _inp("paternity_certain", "Paternity certain", "choice", choices=("yes", "no"), default="yes"),
-        _inp("fetal_rhd", "Cell-free fetal RHD", "choice", required=False, choices=("positive", "negative", "inconclusive")),
+        _inp("fetal_rhd", "Cell-free fetal RHD", "choice", required=False,
+             choices=("positive", "negative", "inconclusive")),
         _inp("rhd_negative_frequency", "RhD-negative frequency", required=False, min=0.001, max=0.999,
              help="empty: the facility's figure"))},
     "blood-volume": {"title": "Maternal blood volume (Nadler)", "run": run_blood_volume, "inputs": (

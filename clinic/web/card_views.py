@@ -15,7 +15,7 @@ from flask import Blueprint, Response, abort, flash, redirect, render_template, 
 from clinic.accounts import roles as R
 from clinic.card.qrtext import MAX_TEXT
 from clinic.web.auth import current_user, may
-from clinic.web.db import get_data_dir, get_profile, get_settings, get_store, utcnow
+from clinic.web.db import get_data_dir, get_settings, get_store, utcnow
 
 bp = Blueprint("card", __name__, url_prefix="/cards")
 
@@ -34,7 +34,7 @@ def _plan(reading):
     if c is None:
         return None
     try:
-        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow(), profile=get_profile())
+        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow())
     except Exception as e:  # noqa: BLE001 - a plan that cannot be made must not hide the reading
         return {"error": f"the care engine could not plan from this card ({type(e).__name__}: {e})", "items": []}
 
@@ -138,7 +138,7 @@ def _issue(pregnancy_id):
         abort(404, f"there is no pregnancy {pregnancy_id}")
     try:
         return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
-                          now=utcnow(), profile=get_profile())
+                          now=utcnow())
     except (CardIssueError, KeyStoreError) as e:
         abort(500, f"the card could not be issued: {e}")
 

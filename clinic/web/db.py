@@ -9,6 +9,8 @@ from pathlib import Path
 
 from flask import Flask, current_app
 
+from clinic.care_inputs import care_inputs, plan_from_settings
+
 
 def _ext() -> dict:
     return current_app.extensions["rhledger"]
@@ -41,32 +43,15 @@ def utcnow() -> datetime:
 
 
 def get_profile():
-    """The facility's protocol profile, with its overrides (loaded once per app)."""
-    ext = _ext()
-    if ext["profile"] is None:
-        from clinic.care import load_profile
-
-        s = get_settings()
-        ext["profile"] = load_profile(s.profile, overrides=s.profile_overrides)
-    return ext["profile"]
-
-
-def care_context():
-    from clinic.care import CareContext
-
-    return CareContext.from_settings(get_settings())
+    """The facility's protocol profile, with its overrides (``clinic.care_inputs``)."""
+    return care_inputs(get_settings())[0]
 
 
 def plan_for(pregnancy_id: str, history: tuple | None = None):
     """The care engine's Plan for one pregnancy, now. ``history``: the (woman, pregnancy, entries)
     of ``store.history(pregnancy_id)`` when the caller has read it already."""
-    from clinic.care import plan_pregnancy
-
-    woman, pregnancy, entries = history or get_store().history(pregnancy_id)
-    return plan_pregnancy(woman, pregnancy, entries, now=utcnow(), profile=get_profile(),
-                          context=care_context())
+    return plan_from_settings(get_settings(), history or get_store().history(pregnancy_id), utcnow())
 
 
 def init_app(app: Flask) -> None:
-    """Nothing to close per request: the Store is durable before each call returns."""
-    app.extensions["rhledger"].setdefault("profile", None)
+    """Nothing to set up or close per request: the Store is durable before each call returns."""

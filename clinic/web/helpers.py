@@ -1,12 +1,20 @@
-"""Small helpers shared by the pages: local time, GA text, form input to raw fields."""
+"""Small helpers shared by the pages: local time, GA text, form input to raw fields.
+
+The template filters and globals are registered by ``init_app``; the stock figures the forms
+show are ``clinic.web.stock`` (registered by its own ``init_app``).
+"""
 from __future__ import annotations
 
 from datetime import date, datetime, timezone
 
 from flask import Flask
 
-from clinic.care.ga import format_ga
+from clinic.care.codes import PATHWAY_WORDS, completed_by
+from clinic.care.codes import gives_anti_d as codes_gives_anti_d
+from clinic.records.choices import plain_words
 from clinic.records.schema import KINDS
+from clinic.records.values import format_ga
+from clinic.web.clock import now_local, today_local
 from clinic.web.db import get_settings, utcnow
 
 
@@ -33,14 +41,6 @@ def local_input(value) -> str:
     """A UTC value as the value of a datetime-local input (facility's wall clock)."""
     dt = as_dt(value)
     return "" if dt is None else dt.astimezone(get_settings().tz).strftime("%Y-%m-%dT%H:%M")
-
-
-def now_local() -> datetime:
-    return utcnow().astimezone(get_settings().tz)
-
-
-def today_local() -> str:
-    return now_local().date().isoformat()
 
 
 def ga_text(days) -> str:
@@ -113,35 +113,23 @@ def dict_without(d: dict, *keys) -> dict:
     return {k: v for k, v in (d or {}).items() if k not in keys}
 
 
-# Which entry form completes a plan item, by the start of its code (plan item codes are stable).
-_ITEM_ENTRY_KIND = (
-    ("booking-typing", "typing"),
-    ("booking-screen", "screen"),
-    ("pre-dose-screen", "screen"),
-    ("partner-typing", "partner_typing"),
-    ("fetal-rhd-test", "fetal_rhd"),
-    ("event-fmh:", "fmh"),
-    ("postpartum-fmh", "fmh"),
-    ("cord-typing", "birth"),
-    ("surveillance-titre", "screen"),
-    ("surveillance-doppler", "doppler"),
-)
-
-
 def field_of(obj, key, default=None):
     """``key`` of a plan part given as a dict (``to_dict()``) or as the care engine's object."""
     return obj.get(key, default) if isinstance(obj, dict) else getattr(obj, key, default)
 
 
 def entry_kind_for(item) -> str | None:
-    """The record kind whose entry completes this plan item: "dose" for a proposed anti-D dose."""
+    """The record kind whose entry completes this plan item (codes.COMPLETED_BY): "dose" for a
+    proposed anti-D dose; an anti-D item with no dose proposed (not needed) has no entry to make."""
     if field_of(item, "dose_iu"):
         return "dose"
-    code = field_of(item, "code") or ""
-    for prefix, kind in _ITEM_ENTRY_KIND:
-        if code.startswith(prefix):
-            return kind
-    return None
+    kind = completed_by(field_of(item, "code") or "")
+    return None if kind == "dose" else kind
+
+
+def gives_anti_d(item) -> bool:
+    """Is the item an anti-D dose (its action reads "Give anti-D"), not a test or a typing?"""
+    return bool(field_of(item, "dose_iu")) or codes_gives_anti_d(field_of(item, "code") or "")
 
 
 def init_app(app: Flask) -> None:
@@ -155,6 +143,6 @@ def init_app(app: Flask) -> None:
     app.add_template_global(now_local, "now_local")
     app.add_template_global(KINDS, "KINDS")
     app.add_template_global(entry_kind_for, "entry_kind_for")
-    from clinic.web.stock import lots_on_hand
-
-    app.add_template_global(lots_on_hand, "lots_on_hand")
+    app.add_template_global(gives_anti_d, "gives_anti_d")
+    app.add_template_global(PATHWAY_WORDS, "PATHWAY_WORDS")
+    app.add_template_filter(plain_words, "choice_words")

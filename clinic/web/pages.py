@@ -17,6 +17,7 @@ NAV = (
     ("Book", "records.booking", "book", R.BOOK),
     ("Calculators", "tools.calculators", "calc", R.CALC),
     ("Stock", "records.stock", "stock", R.STOCK_READ),
+    ("Supply", "supply.index", "supply", R.STOCK_READ),
     ("Cards", "card.index", "card", R.CARD_READ),
     ("District", "district.index", "district", R.REPORT),
     ("Staff", "admin.users", "users", R.USERS),

@@ -9,16 +9,18 @@ from __future__ import annotations
 
 from flask import Blueprint, abort, flash, redirect, render_template, request, url_for
 
+from clinic.care.codes import Category
 from clinic.care.errors import CareError
-from clinic.store import Conflict
 from clinic.records.schema import ENTRY_KINDS, KINDS
 from clinic.records.validate import ValidationError
-from clinic.web import charts, stock as stockmod
+from clinic.store import Conflict
+from clinic.web import charts
+from clinic.web import stock as stockmod
 from clinic.web.auth import current_user, may_write_kind, require_kind
+from clinic.web.clock import today_local
 from clinic.web.db import get_profile, get_settings, get_store, plan_for, utcnow
-from clinic.web.helpers import form_raw, local_input, today_local
-from clinic.web.saving import (BOOKING_PARTS, Duplicates, check_dose_amendment, create_record, redirect_for,
-                                save_booking)
+from clinic.web.helpers import form_raw, local_input
+from clinic.web.saving import BOOKING_PARTS, Duplicates, check_dose_amendment, create_record, redirect_for, save_booking
 
 bp = Blueprint("records", __name__)
 
@@ -35,7 +37,9 @@ BOOKING_FIELDS = {
 PART_LABELS = {"woman": "Woman", "pregnancy": "This pregnancy and its dating",
                "typing": "Her blood group", "partner_typing": "Baby's father's blood group",
                "screen": "Booking antibody screen (IAT)"}
-INDICATION_OF = {"routine": "routine-antenatal", "event": "sensitising-event", "postpartum": "postpartum"}
+# The dose indication to preset when a dose is recorded from a plan item of this category.
+INDICATION_OF = {Category.ROUTINE: "routine-antenatal", Category.EVENT: "sensitising-event",
+                 Category.POSTPARTUM: "postpartum"}
 
 
 def time_of(rec: dict) -> str:
@@ -298,16 +302,16 @@ def add_entry(pregnancy_id, kind):
     if request.method == "POST":
         values = form_raw(kind, request.form)
         try:
-            rec, replay = create_record(kind, values, current_user(), record_id=record_id or None,
-                                        pregnancy_id=pregnancy_id)
+            res = create_record(kind, values, current_user(), record_id=record_id or None,
+                                pregnancy_id=pregnancy_id)
         except ValidationError as e:
             errors = e.errors
         except Conflict as e:
             errors = {"_form": f"{e}. This form was saved before with other values: amend the saved "
                                f"entry on the record instead."}
         else:
-            flash(f"{KINDS[kind].label} saved." if not replay else f"{KINDS[kind].label} was already saved.")
-            return redirect(redirect_for(rec))
+            flash(f"{KINDS[kind].label} saved." if res.created else f"{KINDS[kind].label} was already saved.")
+            return redirect(redirect_for(res.record))
     return render_template("entry_form.html", kind=KINDS[kind], values=values, errors=errors,
                            preg=preg, woman=woman, options=ref_options(pregnancy_id),
                            dating_text=_dating_text(preg) if "ga_days" in KINDS[kind].field_names else "",
@@ -411,14 +415,14 @@ def stock():
         user = current_user()
         values = form_raw("stock", request.form)
         try:
-            rec, replay = create_record("stock", values, user, record_id=record_id or None)
+            res = create_record("stock", values, user, record_id=record_id or None)
         except ValidationError as e:
             errors = e.errors
         except Conflict as e:
             errors = {"_form": f"{e}. This form was saved before with other values: amend the saved "
                                f"movement instead."}
         else:
-            flash("Stock movement saved." if not replay else "This movement was already saved.")
+            flash("Stock movement saved." if res.created else "This movement was already saved.")
             return redirect(url_for("records.stock"))
     moves = sorted(get_store().iter_records(kind="stock"), key=lambda r: r.get("at", ""), reverse=True)
     return render_template("stock.html", kind=KINDS["stock"], values=values, errors=errors,

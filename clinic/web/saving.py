@@ -8,8 +8,11 @@ from __future__ import annotations
 
 import uuid
 
+from clinic.care.codes import AlertCode
 from clinic.records.schema import KINDS
-from clinic.records.validate import ValidationError, utc_text, validate_record
+from clinic.records.validate import ValidationError, validate_record
+from clinic.records.values import utc_text
+from clinic.store import Created
 from clinic.web.db import get_settings, get_store, utcnow
 
 BOOKING_PARTS = ("woman", "pregnancy", "typing", "partner_typing", "screen")
@@ -69,27 +72,25 @@ def resolve_parents(kind: str, woman_id, pregnancy_id) -> tuple[str | None, str 
 
 
 def create_record(kind: str, fields: dict, user, *, record_id=None, woman_id=None,
-                  pregnancy_id=None) -> tuple[dict, bool]:
-    """Store one record. Returns (record, replay) — replay when this id was stored before."""
+                  pregnancy_id=None) -> Created:
+    """Store one record. ``created`` is False for a replay (this id was stored before)."""
     if not isinstance(fields, dict):
         raise ValidationError({"fields": "must be an object of field: value"})
     rid = check_id(record_id)
     woman_id, pregnancy_id = resolve_parents(kind, woman_id, pregnancy_id)
     store = get_store()
-    existed = store.get(rid) is not None
-    if kind == "dose" and not existed:
+    if kind == "dose" and store.get(rid) is None:  # a replay was judged when it was first stored
         clean = validate_record(kind, fields, now=utcnow(), tz=get_settings().tz)
         check_departure({**clean, "id": rid, "kind": kind, "woman_id": woman_id, "pregnancy_id": pregnancy_id,
                          "facility": get_settings().facility_id, "created_at": utc_text(utcnow()), "version": 1},
                         user)
-    rec = store.create(kind, fields, by=user.username, facility=get_settings().facility_id,
-                       woman_id=woman_id, pregnancy_id=pregnancy_id, record_id=rid, now=utcnow())
-    return rec, existed
+    return store.create(kind, fields, by=user.username, facility=get_settings().facility_id,
+                        woman_id=woman_id, pregnancy_id=pregnancy_id, record_id=rid, now=utcnow())
 
 
 # Alerts of the care engine saying that a recorded dose departs from the plan. Recording such
 # a dose overrides the plan's suggestion: a clinician's decision, with the reason written down.
-DEPARTURE_ALERTS = ("dose-above-allowed", "dose-rhd-positive", "dose-after-sensitisation")
+DEPARTURE_ALERTS = (AlertCode.DOSE_ABOVE_ALLOWED, AlertCode.DOSE_RHD_POSITIVE, AlertCode.DOSE_AFTER_SENSITISATION)
 
 
 def departures(candidate: dict) -> list[str]:
@@ -185,16 +186,16 @@ def save_booking(body: dict, user) -> dict:
     # A stored id with other content is a conflict; check all before writing any.
     from clinic.store import Conflict
 
-    replay = True
+    all_stored = True  # every part was stored before: a replay, no duplicate check
     for name, part in parts.items():
         if "clean" not in part:
             continue
         old = store.get(part["id"])
         if old is None:
-            replay = False
+            all_stored = False
         elif old.get("kind") != name:
             raise Conflict(f"id {part['id']} is already a {old.get('kind')} record")
-    if not replay and existing_woman is None and store.get(parts["woman"]["id"]) is None \
+    if not all_stored and existing_woman is None and store.get(parts["woman"]["id"]) is None \
             and not body.get("confirm_not_duplicate"):
         wf = parts["woman"]["clean"]
         dups = [d for d in store.find_duplicates(wf["name"], birth_date=wf.get("birth_date"),
@@ -202,6 +203,7 @@ def save_booking(body: dict, user) -> dict:
         if dups:
             raise Duplicates(dups)
     out: dict[str, dict] = {}
+    created = False
     if existing_woman is not None:
         out["woman"] = existing_woman
     woman_id = parts["woman"]["id"]
@@ -215,6 +217,8 @@ def save_booking(body: dict, user) -> dict:
             kw = {"woman_id": woman_id}
         elif name != "woman":
             kw = {"woman_id": woman_id, "pregnancy_id": preg_id}
-        out[name] = store.create(name, part["fields"], by=user.username, facility=s.facility_id,
-                                 record_id=part["id"], now=now, **kw)
-    return {"records": out, "replay": replay}
+        res = store.create(name, part["fields"], by=user.username, facility=s.facility_id,
+                           record_id=part["id"], now=now, **kw)
+        out[name] = res.record
+        created = created or res.created
+    return {"records": out, "replay": not created}

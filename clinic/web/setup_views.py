@@ -3,7 +3,7 @@
     /setup/          on the phone: install the clinic's CA certificate, then open the app
     /setup/ca.crt    the CA certificate (DER, application/x-x509-ca-cert)
     /setup/qr        on the laptop: the setup address as a QR code to scan with the phone
-    /outbox          what waits on this phone (rendered in the browser by static/js/outbox.js)
+    /outbox          what waits on this phone (rendered in the browser by static/js/outbox/page.js)
     /offline         shown by the service worker for a page the phone has not kept
     /net/ping        204: "the laptop is reachable" for the connection indicator
 
@@ -27,7 +27,9 @@ bp = Blueprint("setup", __name__)
 
 SHELL_PAGES = ("/outbox", "/offline")
 # Not pre-cached: the worker itself, bookkeeping files, licences (still served on request).
-SKIP_PRECACHE = re.compile(r"(^sw\.js$|^manifest\.webmanifest$|(^|/)VERSIONS?\.txt$|(^|/)LICEN[CS]E[^/]*$|\.map$|(^|/)\.)")
+SKIP_PRECACHE = re.compile(
+    r"(^sw\.js$|^manifest\.webmanifest$|(^|/)VERSIONS?\.txt$|(^|/)LICEN[CS]E[^/]*$|\.map$|(^|/)\.)"
+)
 TEMPLATES = Path(__file__).with_name("templates")
 _version_lock = threading.Lock()
 _version_cache: dict = {}
@@ -74,9 +76,13 @@ def service_worker_response() -> Response:
         # Pages worth holding before the laptop goes out of reach (when signed in).
         "warm": [url_for("pages.today"), url_for("records.booking")],
     }
-    text, n = re.subn(r"/\*@config\*/.*?/\*@end\*/",
-                      lambda _m: "/*@config*/ var CONFIG = " + json.dumps(config) + "; /*@end*/",
-                      source.read_text(encoding="utf-8"), count=1, flags=re.S)
+    text, n = re.subn(
+        r"/\*@config\*/.*?/\*@end\*/",
+        lambda _m: "/*@config*/ var CONFIG = " + json.dumps(config) + "; /*@end*/",
+        source.read_text(encoding="utf-8"),
+        count=1,
+        flags=re.S,
+    )
     if n != 1:
         abort(500, "static/sw.js has lost its /*@config*/ … /*@end*/ line")
     resp = Response(text, mimetype="text/javascript")

@@ -3,9 +3,11 @@ from __future__ import annotations
 
 from datetime import timedelta
 
+from flask import Flask
+
 from clinic.reports.stock import EXPIRY_WARNING_DAYS, balances
+from clinic.web.clock import now_local
 from clinic.web.db import get_settings, get_store, utcnow
-from clinic.web.helpers import now_local
 
 
 def on_hand(records) -> list:
@@ -27,3 +29,7 @@ def suggest_lot(product: str) -> dict | None:
 def lots_on_hand() -> list:
     """Lots with vials on hand and not expired (for the lot pickers of the dose and stock forms)."""
     return [b for b in on_hand(list(get_store().iter_records(kind="stock"))) if b.vials > 0 and not b.expired]
+
+
+def init_app(app: Flask) -> None:
+    app.add_template_global(lots_on_hand, "lots_on_hand")

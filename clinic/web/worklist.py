@@ -3,9 +3,11 @@ from __future__ import annotations
 
 from datetime import timedelta
 
+from clinic.care.codes import OPEN_STATES, AlertCode, Category
 from clinic.care.errors import CareError
 from clinic.web.db import get_settings, get_store, plan_for, utcnow
-from clinic.web.helpers import as_dt, field_of as _get
+from clinic.web.helpers import as_dt
+from clinic.web.helpers import field_of as _get
 
 SOON = timedelta(days=14)
 FILTERS = {
@@ -18,7 +20,6 @@ FILTERS = {
 }
 # Pregnancies whose plans can still hold something to do here.
 ACTIVE_STATUS = ("ongoing", "delivered", "ended-early")
-OPEN_STATES = ("due", "overdue", "not-yet-due")
 
 
 def _matches(item, flt: str, now) -> bool:
@@ -27,15 +28,15 @@ def _matches(item, flt: str, now) -> bool:
         return True
     if flt == "routine-week":
         when = as_dt(_get(item, "due")) or as_dt(_get(item, "opens"))
-        return cat == "routine" and (when is None or when <= now + timedelta(days=7))
+        return cat == Category.ROUTINE and (when is None or when <= now + timedelta(days=7))
     if flt == "postpartum":
-        return cat in ("postpartum", "birth")
+        return cat in (Category.POSTPARTUM, Category.BIRTH)
     if flt == "events":
-        return cat == "event"
+        return cat == Category.EVENT
     if flt == "tests":
-        return cat in ("screen", "typing")
+        return cat in (Category.SCREEN, Category.TYPING)
     if flt == "surveillance":
-        return cat == "surveillance"
+        return cat == Category.SURVEILLANCE
     raise ValueError(flt)
 
 
@@ -61,7 +62,7 @@ def build(flt: str = "all") -> dict:
             plan = plan_for(preg["id"], history)
         except CareError as e:
             # Said out loud, not skipped: this pregnancy's items cannot be shown until it is fixed.
-            alerts.append({"alert": {"code": "plan-failed", "severity": "danger", "source": "rhledger",
+            alerts.append({"alert": {"code": AlertCode.PLAN_FAILED, "severity": "danger", "source": "rhledger",
                                      "message": f"the plan could not be worked out ({e}); open her record "
                                                 f"and check the entries"},
                            "woman": woman, "pregnancy": preg})

@@ -1,5 +1,5 @@
 /* rhledger page helpers: gestational age computed as you type, validation hints.
-   Plain JS, no framework. static/js/outbox.js (web-offline) handles form submission. */
+   Plain JS, no framework. static/js/outbox/forms.js (web-offline) handles form submission. */
 (function () {
   "use strict";
 

@@ -86,7 +86,7 @@ def test_duplicate_check_by_name_and_birth_date(world):
     d = world["dirs"]
     hosp = world["hospital"]
     local = hosp.create("woman", {"name": "Mara Kellin Ostrova", "birth_date": "1994-03-17"}, by="demo",
-                        facility="DEMO-HOSPITAL")
+                        facility="DEMO-HOSPITAL").record
     r = read_at_hospital(world, card_at_clinic(world).card.text)
     with pytest.raises(PossibleDuplicate) as e:
         import_reading(hosp, r, data_dir=d["hospital"])

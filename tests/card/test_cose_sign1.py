@@ -3,10 +3,10 @@ from __future__ import annotations
 
 import cbor2
 import pytest
-from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 from cryptography.hazmat.primitives import serialization
+from cryptography.hazmat.primitives.asymmetric.ed25519 import Ed25519PrivateKey
 
-from clinic.signing.cose import parse1, sign1, verify1
+from clinic.signing.cose import parse1, sign1
 from clinic.signing.errors import CoseFormatError
 from clinic.signing.keys import SigningKey
 from clinic.signing.trust import TrustEntry, TrustKey, TrustList
@@ -43,19 +43,19 @@ def test_structure_is_tag_18_with_alg_and_kid_protected(key):
 
 def test_trusted_altered_unknown(key, trust):
     m = sign1(b"hello", key)
-    assert verify1(m, trust).state == "trusted"
+    assert trust.verify(m).state == "trusted"
     bad = bytearray(m)
     bad[-1] ^= 0x01
-    assert verify1(bytes(bad), trust).state == "altered"
+    assert trust.verify(bytes(bad)).state == "altered"
     other = SigningKey(Ed25519PrivateKey.generate(), "DEMO-ELSEWHERE")
-    v = verify1(sign1(b"hello", other), trust)
+    v = trust.verify(sign1(b"hello", other))
     assert v.state == "unknown-issuer" and v.facility_id is None
 
 
 def test_payload_change_is_altered(key, trust):
     obj = cbor2.loads(sign1(b"dose 1500 IU", key)).value
     forged = cbor2.dumps(cbor2.CBORTag(18, [obj[0], {}, b"dose 1250 IU", obj[3]]))
-    assert verify1(forged, trust).state == "altered"
+    assert trust.verify(forged).state == "altered"
 
 
 @pytest.mark.parametrize("junk", [b"", b"\x00", b"not cbor at all \xff\xff", cbor2.dumps([1, 2, 3]),
@@ -64,6 +64,17 @@ def test_payload_change_is_altered(key, trust):
                                   cbor2.dumps([cbor2.dumps({1: -8}), {}, b"", bytes(64)])])
 def test_non_cose_input_raises_cose_format_error(junk, trust):
     with pytest.raises(CoseFormatError):
-        verify1(junk, trust)
+        trust.verify(junk)
     with pytest.raises(CoseFormatError):
         parse1(junk)
+
+
+def test_raw_check_needs_the_signers_public_key(key):
+    from clinic.signing.cose import verify_with_public
+
+    m = sign1(b"hello", key)
+    assert parse1(m).signed_by(key.public_raw) and verify_with_public(m, key.public_raw) == b"hello"
+    other = SigningKey(Ed25519PrivateKey.generate(), "DEMO-ELSEWHERE")
+    assert not parse1(m).signed_by(other.public_raw)
+    with pytest.raises(CoseFormatError, match="does not match"):
+        verify_with_public(m, other.public_raw)

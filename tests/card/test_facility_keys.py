@@ -7,10 +7,15 @@ import stat
 
 import pytest
 
-from clinic.signing.cose import sign1, verify1
+from clinic.signing.cose import sign1
 from clinic.signing.errors import KeyStoreError
-from clinic.signing.keys import (ensure_facility_key, fingerprint_of, load_signing_key, normalise_fingerprint,
-                                 rotate_facility_key)
+from clinic.signing.keys import (
+    ensure_facility_key,
+    fingerprint_of,
+    load_signing_key,
+    normalise_fingerprint,
+    rotate_facility_key,
+)
 from clinic.signing.trust import load_trust
 
 
@@ -72,10 +77,10 @@ def test_rotation_keeps_old_signatures_verifiable(tmp_path):
     assert new.kid != old.kid and new_info.kid == new.kid
     assert (tmp_path / "keys" / "retired" / f"{old.kid.hex()}.json").exists()
     trust = load_trust(tmp_path)
-    assert verify1(message, trust).state == "trusted"
-    assert verify1(sign1(b"after", new), trust).state == "trusted"
+    assert trust.verify(message).state == "trusted"
+    assert trust.verify(sign1(b"after", new)).state == "trusted"
     # The retired key is accepted only up to its end date.
-    assert verify1(message, trust, on_date="2999-01-01").state == "unknown-issuer"
+    assert trust.verify(message, on_date="2999-01-01").state == "unknown-issuer"
 
 
 def test_fingerprint_typed_loosely_normalises():

@@ -5,7 +5,7 @@ from datetime import date
 
 import pytest
 
-from clinic.signing.cose import sign1, verify1
+from clinic.signing.cose import sign1
 from clinic.signing.errors import DistrictKeyUnconfirmed, TrustListError
 from clinic.signing.keys import ensure_facility_key, load_signing_key, rotate_facility_key
 from clinic.signing.trust import build_trust_list, import_trust_list, load_trust, own_entry
@@ -50,10 +50,10 @@ def test_imported_list_makes_the_clinic_trusted_at_the_hospital(world):
     import_trust_list(dirs["hospital"], build(dirs, infos), expected_fingerprint=infos["district"].fingerprint)
     message = sign1(b"card", load_signing_key(dirs["clinic"]))
     trust = load_trust(dirs["hospital"])
-    v = verify1(message, trust, on_date="2026-11-20")
+    v = trust.verify(message, on_date="2026-11-20")
     assert v.state == "trusted" and v.entry.name == "Demo Clinic" and v.entry.phone == "+000 555 0100"
     # Before the key's valid_from it is not accepted.
-    assert verify1(message, trust, on_date="2025-12-31").state == "unknown-issuer"
+    assert trust.verify(message, on_date="2025-12-31").state == "unknown-issuer"
     assert trust.lookup(infos["clinic"].kid, "2026-11-20").facility_id == "DEMO-CLINIC"
     assert trust.lookup(infos["clinic"].kid, "2025-01-01") is None
 
@@ -62,7 +62,7 @@ def test_without_a_list_only_the_own_key_is_trusted(world):
     dirs, infos = world
     trust = load_trust(dirs["hospital"])
     assert [e.facility_id for e in trust.entries] == ["DEMO-HOSPITAL"]
-    assert verify1(sign1(b"x", load_signing_key(dirs["clinic"])), trust).state == "unknown-issuer"
+    assert trust.verify(sign1(b"x", load_signing_key(dirs["clinic"]))).state == "unknown-issuer"
 
 
 def test_later_list_must_come_from_the_pinned_key_and_be_newer(world, tmp_path):

@@ -9,8 +9,7 @@ from __future__ import annotations
 import itertools
 from datetime import datetime, timezone
 
-from clinic.care import CareContext, load_profile, plan_pregnancy
-from clinic.config import Product
+from clinic.care import CareContext, Product, load_profile, plan_pregnancy
 from clinic.records.validate import validate_record
 
 NOW = datetime(2026, 12, 1, 12, 0, tzinfo=timezone.utc)

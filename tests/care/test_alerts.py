@@ -1,8 +1,7 @@
 """What looks wrong: every alert the engine raises, each from a recorded history."""
 from datetime import timedelta
 
-from tests.care.builders import (alert_codes, booked_negative, dose, event, item, make_plan, P1500, screen,
-                                 typing, utc)
+from tests.care.builders import P1500, alert_codes, booked_negative, dose, event, item, make_plan, screen, typing, utc
 
 SCREEN_28 = screen("2026-09-13T08:00:00Z")
 

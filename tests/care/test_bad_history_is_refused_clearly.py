@@ -4,7 +4,7 @@ from datetime import datetime
 import pytest
 
 from clinic.care import CareInputError, load_profile, plan_pregnancy
-from tests.care.builders import booked_negative, dose, make_plan, woman, utc
+from tests.care.builders import booked_negative, dose, make_plan, utc, woman
 
 
 def test_naive_now_is_refused():

@@ -6,7 +6,8 @@ import math
 
 import pytest
 
-from clinic.care import CareInputError, format_ga, ga_days_from_crl, ga_from_crl
+from clinic.care import CareInputError, ga_days_from_crl, ga_from_crl
+from clinic.records.values import format_ga
 
 
 @pytest.mark.parametrize("crl, expected_days", [

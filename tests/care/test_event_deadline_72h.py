@@ -6,7 +6,7 @@ from datetime import timedelta
 
 import pytest
 
-from tests.care.builders import booked_negative, dose, event, item, make_plan, utc, alert_codes
+from tests.care.builders import alert_codes, booked_negative, dose, event, item, make_plan, utc
 
 T = utc(2026, 8, 1, 10, 0)        # 2026-08-01 is 21+6 on LMP 2026-03-01
 EV = event("2026-08-01T10:00:00Z", "antepartum-haemorrhage", id="ev1")

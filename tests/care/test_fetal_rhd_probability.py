@@ -6,7 +6,8 @@ overrides the estimate."""
 import math
 
 import pytest
-from hypothesis import given, strategies as st
+from hypothesis import given
+from hypothesis import strategies as st
 
 from clinic.care import CareInputError, fetal_rhd_probability
 

@@ -1,7 +1,8 @@
 """Anti-D for a fetomaternal haemorrhage: the bleed from a Kleihauer-Betke count or a flow
 cytometry %, the dose by the profile's rule, and whole vials."""
 import pytest
-from hypothesis import given, settings, strategies as st
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from clinic.care import CareInputError, fmh_result, fmh_volume, load_profile, nadler_blood_volume_ml, vials_for
 

@@ -10,8 +10,7 @@ Standard pregnancy (builders): LMP 2026-03-01, booked 2026-05-01, EDD 2026-12-06
 import pytest
 
 from clinic.care import ProfileError, load_profile
-from tests.care.builders import (alert_codes, birth, booked_negative, event, item, make_plan, rec, typing,
-                                 utc)
+from tests.care.builders import alert_codes, birth, booked_negative, event, item, make_plan, rec, typing, utc
 
 
 def _partner(rhd="positive", **kw):

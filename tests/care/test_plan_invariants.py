@@ -4,7 +4,8 @@ negative; every FMH vial count is whole."""
 import json
 from datetime import timedelta
 
-from hypothesis import HealthCheck, given, settings, strategies as st
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
 
 from clinic.records.schema import EVENT_KINDS
 from tests.care.builders import birth, booked_negative, dose, event, make_plan, rec, screen, utc

@@ -10,7 +10,8 @@ from datetime import date, timedelta
 
 import pytest
 
-from clinic.care import choose_dating, load_profile, parse_ga
+from clinic.care import choose_dating, load_profile
+from clinic.records.values import parse_ga
 
 
 def _acog(lmp, scan_on, scan_ga):

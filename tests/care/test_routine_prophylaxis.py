@@ -6,8 +6,7 @@ from zoneinfo import ZoneInfo
 
 import pytest
 
-from tests.care.builders import (alert_codes, booked_negative, birth, dose, item, make_plan, rec, screen,
-                                 utc)
+from tests.care.builders import alert_codes, birth, booked_negative, dose, item, make_plan, rec, screen, utc
 
 
 def test_bsh_two_dose_windows():

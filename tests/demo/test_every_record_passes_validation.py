@@ -6,7 +6,8 @@ from datetime import timedelta
 import pytest
 
 from clinic.records.schema import KINDS
-from clinic.records.validate import parse_utc, validate_record
+from clinic.records.validate import validate_record
+from clinic.records.values import parse_utc
 from seed_demo.scenario import FACILITY_SITES
 
 

@@ -37,13 +37,13 @@ def test_demo_passwords_sign_in(site, demo, demo_dirs):
 
 
 def test_clinics_follow_different_protocols(demo_dirs):
-    from clinic.care import load_profile
+    from clinic.care_inputs import care_inputs
     from clinic.config import load_settings
 
     seen = {}
     for site in ("clinic-a", "clinic-b", "clinic-c"):
         s = load_settings(demo_dirs[site])
-        profile = load_profile(s.profile, overrides=s.profile_overrides)
+        profile, _ = care_inputs(s)
         seen[site] = (profile.id, profile.regimen)
     assert seen == {"clinic-a": ("bsh-2014", "single"),      # bsh-2014 with a local override
                     "clinic-b": ("acog-2017", "single"),

@@ -5,8 +5,15 @@ from datetime import datetime
 
 import pytest
 
-from clinic.reports.bundle import (BundleInvalid, BundleUnreadable, BundleUntrusted,
-                                   encode_bundle, export_bundle, import_bundle, read_bundle)
+from clinic.reports.bundle import (
+    BundleInvalid,
+    BundleUnreadable,
+    BundleUntrusted,
+    encode_bundle,
+    export_bundle,
+    import_bundle,
+    read_bundle,
+)
 from clinic.reports.cases import load_inputs
 from clinic.reports.coverage import INDICATORS, compute_month
 from clinic.signing.keys import load_signing_key

@@ -10,9 +10,8 @@ import pytest
 
 seed = pytest.importorskip("seed_demo.scenario")
 
-from seed_demo.stories import story  # noqa: E402
-
 from clinic.web import create_app  # noqa: E402
+from seed_demo.stories import story  # noqa: E402
 
 NOW = datetime(2026, 12, 1, 9, 0, tzinfo=timezone.utc)
 # Stories of the demo built to show a postpartum dose missed last month, one per clinic.

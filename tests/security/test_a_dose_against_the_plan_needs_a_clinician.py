@@ -14,14 +14,14 @@ def case(tmp_path):
     world = make_world(tmp_path)
     s = world.store
     w = s.create("woman", dict(example("woman"), name="Nadia Invented-Dose", register_no="SEC-002"),
-                 by="midwife", facility=FACILITY)
-    p = s.create("pregnancy", example("pregnancy"), by="midwife", facility=FACILITY, woman_id=w["id"])
+                 by="midwife", facility=FACILITY).record
+    p = s.create("pregnancy", example("pregnancy"), by="midwife", facility=FACILITY, woman_id=w["id"]).record
     s.create("typing", {"abo": "A", "rhd": "negative", "tested_on": day_ago(69)}, by="lab", facility=FACILITY,
              pregnancy_id=p["id"])
     s.create("screen", {"sampled_at": at_ago(days=69), "result": "negative"}, by="lab", facility=FACILITY,
              pregnancy_id=p["id"])
     ev = s.create("event", {"event_kind": "abdominal-trauma", "occurred_at": at_ago(hours=6)}, by="midwife",
-                  facility=FACILITY, pregnancy_id=p["id"])
+                  facility=FACILITY, pregnancy_id=p["id"]).record
     return world, p["id"], ev["id"]
 
 

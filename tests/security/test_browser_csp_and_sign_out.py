@@ -53,9 +53,9 @@ def _sensitised(live) -> str:
     def ago(days):
         return (now - timedelta(days=days)).strftime("%Y-%m-%dT%H:%M:%SZ")
 
-    w = st.create("woman", {"name": "Imani Invented-Charts", "stated_age": 31}, by="clinician", facility=fid)
+    w = st.create("woman", {"name": "Imani Invented-Charts", "stated_age": 31}, by="clinician", facility=fid).record
     p = st.create("pregnancy", {"booked_on": ago(120)[:10], "lmp": ago(200)[:10], "status": "ongoing",
-                                "gravidity": 3, "parity": 2}, by="clinician", facility=fid, woman_id=w["id"])
+                                "gravidity": 3, "parity": 2}, by="clinician", facility=fid, woman_id=w["id"]).record
     st.create("typing", {"abo": "O", "rhd": "negative", "tested_on": ago(119)[:10]}, by="lab", facility=fid,
               pregnancy_id=p["id"])
     for days, titre in ((100, 8), (60, 16), (20, 32)):

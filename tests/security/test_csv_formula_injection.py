@@ -8,7 +8,8 @@ import io
 
 import pytest
 
-from clinic.reports.render_csv import coverage_csv, follow_up_csv, safe_cell
+from clinic.records.csv_cells import safe_cell
+from clinic.reports.render_csv import coverage_csv, follow_up_csv
 from tests.reports import dataset as ds
 from tests.reports.conftest import inputs, november, trend, truth_store  # noqa: F401 - fixtures
 
@@ -58,4 +59,32 @@ def test_the_coverage_csv_neutralises_facility_names(november, trend):
     renamed = {m: dataclasses.replace(r, facility_names=evil) for m, r in trend.items()}
     cells = _cells(coverage_csv(renamed))
     assert "'=HYPERLINK(\"http://evil.invalid\")" in cells
+    assert not [c for c in cells if c[:1] in ("=", "+", "-", "@", "\t", "\r")]
+
+
+def test_every_csv_writer_of_the_app_goes_through_the_safe_cells():
+    """A new CSV export that writes cells itself fails here (clinic/records/csv_cells.py)."""
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2] / "clinic"
+    writers = [p for p in root.rglob("*.py") if "csv.writer(" in p.read_text() or "csv.DictWriter(" in p.read_text()]
+    assert writers, "no CSV writer found (the scan would prove nothing)"
+    for p in writers:
+        text = p.read_text()
+        assert "clinic.records.csv_cells import" in text and "lineterminator=LINE_END" in text, p
+
+
+def test_the_supply_forecast_csv_neutralises_lots_and_names(monkeypatch):
+    from datetime import date
+
+    from clinic.supply import render
+
+    doc = {"facilities": [{"facility": "f1", "name": "=Evil()", "products": [{
+        "product": "+Anti-D", "vial_iu": 1500, "expected_vials": 1, "upper_vials": 2, "on_hand_vials": 3,
+        "expiring_unused_vials": 0, "stockout_date": "", "order_vials": 0, "order_by": "", "weeks": []}]}],
+        "transfers": [{"from": "f1", "from_name": "@x", "product": "-p", "vial_iu": 500, "lot": "=1+1",
+                       "expiry": "2027-01-01", "vials": 1, "to": "f2", "arrives": str(date(2026, 6, 1))}]}
+    monkeypatch.setattr(render, "to_dict", lambda rep: doc)
+    cells = _cells(render.csv_text(None))
+    assert "'=Evil()" in cells and "'+Anti-D" in cells and "'=1+1" in cells and "'@x" in cells
     assert not [c for c in cells if c[:1] in ("=", "+", "-", "@", "\t", "\r")]

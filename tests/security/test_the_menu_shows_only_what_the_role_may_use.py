@@ -9,11 +9,11 @@ import pytest
 from tests.security.world import Client, make_world
 
 MENU = {
-    "midwife": ["Today", "Find", "Book", "Calculators", "Stock", "Cards", "District"],
-    "nurse": ["Today", "Find", "Book", "Calculators", "Stock", "Cards", "District"],
-    "clinician": ["Today", "Find", "Book", "Calculators", "Stock", "Cards", "District"],
-    "lab": ["Today", "Find", "Calculators", "Stock", "Cards", "District"],
-    "district-officer": ["Stock", "District"],
+    "midwife": ["Today", "Find", "Book", "Calculators", "Stock", "Supply", "Cards", "District"],
+    "nurse": ["Today", "Find", "Book", "Calculators", "Stock", "Supply", "Cards", "District"],
+    "clinician": ["Today", "Find", "Book", "Calculators", "Stock", "Supply", "Cards", "District"],
+    "lab": ["Today", "Find", "Calculators", "Stock", "Supply", "Cards", "District"],
+    "district-officer": ["Stock", "Supply", "District"],
     "admin": ["Staff", "Audit"],
 }
 

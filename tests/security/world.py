@@ -117,13 +117,13 @@ def make_data_dir(root: Path) -> Path:
 
 def fill(store, ids: dict, *, fields=example) -> dict:
     """One record of every kind (woman, pregnancy, each entry kind, a stock movement)."""
-    w = store.create("woman", fields("woman"), by="midwife", facility=FACILITY)
-    p = store.create("pregnancy", fields("pregnancy"), by="midwife", facility=FACILITY, woman_id=w["id"])
+    w = store.create("woman", fields("woman"), by="midwife", facility=FACILITY).record
+    p = store.create("pregnancy", fields("pregnancy"), by="midwife", facility=FACILITY, woman_id=w["id"]).record
     ids.update(woman=w["id"], pregnancy=p["id"])
     for kind in ENTRY_ORDER:
-        r = store.create(kind, fields(kind), by="clinician", facility=FACILITY, pregnancy_id=p["id"])
+        r = store.create(kind, fields(kind), by="clinician", facility=FACILITY, pregnancy_id=p["id"]).record
         ids[kind] = r["id"]
-    ids["stock"] = store.create("stock", fields("stock"), by="midwife", facility=FACILITY)["id"]
+    ids["stock"] = store.create("stock", fields("stock"), by="midwife", facility=FACILITY).record["id"]
     return ids
 
 

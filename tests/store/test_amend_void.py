@@ -22,7 +22,8 @@ def test_amend_keeps_earlier_values_and_bumps_the_version(store, woman, now):
 def test_amend_with_a_stale_expected_version_is_a_conflict(store, woman, now):
     store.amend(woman["id"], {"village": "A"}, by=USERNAME, reason="first edit", expected_version=1, now=now)
     with pytest.raises(Conflict) as e:
-        store.amend(woman["id"], {"village": "B"}, by=USERNAME, reason="second edit, stale", expected_version=1, now=now)
+        store.amend(woman["id"], {"village": "B"}, by=USERNAME, reason="second edit, stale", expected_version=1,
+                    now=now)
     assert e.value.current_version == 2
     assert store.get(woman["id"])["village"] == "A"
 
@@ -48,7 +49,7 @@ def test_amend_recomputes_the_canonical_dose(store, pregnancy, now):
     dose = store.create("dose", {"given_at": "2026-03-10T10:00", "amount": 250, "unit": "ug", "route": "IM",
                                  "lot": "LOT-9", "lot_expiry": "2027-01-31", "indication": "sensitising-event",
                                  "given_by": "Midwife One"},
-                        by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now)
+                        by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now).record
     assert dose["dose_iu"] == 1250  # 250 µg x 5 IU/µg (BSH 2014, Qureshi et al., Transfus Med 2014;24:8-20)
     rec = store.amend(dose["id"], {"amount": 300}, by=USERNAME, reason="wrong vial", now=now)
     assert rec["dose_iu"] == 1500 and rec["amendments"][0]["changes"]["dose_iu"] == {"old": 1250, "new": 1500}

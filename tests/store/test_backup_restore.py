@@ -29,7 +29,8 @@ def test_backup_and_restore_round_trip(data_dir, store, woman, pregnancy, now):
     assert "MANIFEST.sha256" in names and "config.toml" in names and "records/index.log" in names
 
     store.amend(woman["id"], {"village": "After Backup"}, by=USERNAME, reason="r", now=now)
-    extra = store.create("woman", {"name": "Later Person", "stated_age": 22}, by=USERNAME, facility=FACILITY_ID, now=now)
+    extra = store.create("woman", {"name": "Later Person", "stated_age": 22}, by=USERNAME, facility=FACILITY_ID,
+                         now=now).record
     result = Store.restore(data_dir, path)
     assert _tree(data_dir) == saved
     assert result["safety_backup"] is not None and result["safety_backup"].exists()
@@ -60,7 +61,9 @@ def test_altered_backup_is_refused_and_nothing_replaced(data_dir, store, woman, 
     assert [p for p in list_backups(data_dir) if "prerestore" in p.name] == []
 
 
-def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refused(data_dir, store, woman, now, tmp_path):
+def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refused(
+    data_dir, store, woman, now, tmp_path
+):
     path = store.backup(now=now)
     # Rewrite one member without updating the manifest, and drop the checksum file beside it.
     forged = tmp_path / path.name
@@ -70,6 +73,7 @@ def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refu
             if m.name.endswith(".json") and m.name.startswith("records/test-clinic"):
                 data = data.replace(b"Upper Ridge", b"Forged Ridg")
             import io
+
             m.size = len(data)
             dst.addfile(m, io.BytesIO(data))
     before = _tree(data_dir)

@@ -9,6 +9,8 @@ import sys
 import time
 from pathlib import Path
 
+import pytest
+
 from clinic.store import Store
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -31,6 +33,7 @@ def _kill_while_writing(data_dir, pregnancy_id, delay) -> list[str]:
     return [first.decode().strip()] + rest.decode().split()
 
 
+@pytest.mark.slow
 def test_sigkill_while_writing_loses_no_acknowledged_write(data_dir, store, pregnancy):
     rng = random.Random(20260316)
     acknowledged: list[str] = []
@@ -46,7 +49,7 @@ def test_sigkill_while_writing_loses_no_acknowledged_write(data_dir, store, preg
     assert set(acknowledged) <= {a["id"] for a in reopened.audit()}
     # The store still takes writes after the crashes.
     rec = reopened.create("typing", {"abo": "O", "rhd": "negative", "tested_on": "2026-03-02"},
-                          by="after-crash", facility="test-clinic", pregnancy_id=pregnancy["id"])
+                          by="after-crash", facility="test-clinic", pregnancy_id=pregnancy["id"]).record
     assert Store(data_dir).get(rec["id"]) is not None
 
 

@@ -12,7 +12,8 @@ TYPING = {"abo": "O", "rhd": "negative", "tested_on": "2026-03-02", "method": "t
 
 
 def test_create_sets_the_whole_envelope(store, pregnancy, now):
-    rec = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now)
+    rec = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"],
+                       now=now).record
     assert set(ENVELOPE_FIELDS) <= set(rec)
     assert rec["kind"] == "typing" and rec["facility"] == FACILITY_ID
     assert rec["version"] == 1 and rec["amendments"] == [] and rec["voided"] is False
@@ -22,12 +23,14 @@ def test_create_sets_the_whole_envelope(store, pregnancy, now):
 
 
 def test_entry_takes_woman_id_from_its_pregnancy(store, woman, pregnancy, now):
-    rec = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now)
+    rec = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"],
+                       now=now).record
     assert rec["woman_id"] == woman["id"] and rec["pregnancy_id"] == pregnancy["id"]
 
 
 def test_entry_with_another_womans_id_is_refused(store, pregnancy, now):
-    other = store.create("woman", {"name": "Other Person", "stated_age": 30}, by=USERNAME, facility=FACILITY_ID, now=now)
+    other = store.create("woman", {"name": "Other Person", "stated_age": 30}, by=USERNAME, facility=FACILITY_ID,
+                         now=now).record
     with pytest.raises(ValidationError) as e:
         store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"],
                      woman_id=other["id"], now=now)
@@ -52,13 +55,13 @@ def test_entry_needs_an_existing_pregnancy(store, woman, now):
 def test_stock_record_needs_only_a_facility(store, now):
     rec = store.create("stock", {"move": "received", "at": "2026-03-10T08:00", "product": "Anti-D 1500 IU",
                                  "vial_iu": 1500, "lot": "LOT-A1", "lot_expiry": "2027-06-30", "vials": 10},
-                       by=USERNAME, facility=FACILITY_ID, now=now)
+                       by=USERNAME, facility=FACILITY_ID, now=now).record
     assert rec["woman_id"] is None and rec["pregnancy_id"] is None
     assert [r["id"] for r in store.iter_records(kind="stock")] == [rec["id"]]
 
 
 def test_history_returns_woman_pregnancy_and_entries(store, woman, pregnancy, now):
-    t = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now)
+    t = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now).record
     w, p, entries = store.history(pregnancy["id"])
     assert w["id"] == woman["id"] and p["id"] == pregnancy["id"] and [e["id"] for e in entries] == [t["id"]]
     with pytest.raises(NotFound):
@@ -66,7 +69,7 @@ def test_history_returns_woman_pregnancy_and_entries(store, woman, pregnancy, no
 
 
 def test_entries_include_voided_ones_flagged(store, pregnancy, now):
-    t = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now)
+    t = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], now=now).record
     store.void(t["id"], by=USERNAME, reason="entered on the wrong woman", now=now)
     (e,) = store.entries(pregnancy["id"])
     assert e["voided"] is True and e["voided_reason"] == "entered on the wrong woman"

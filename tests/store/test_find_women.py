@@ -9,7 +9,7 @@ from tests.conftest import FACILITY_ID, USERNAME
 @pytest.fixture
 def women(store, now):
     def add(name, **kw):
-        return store.create("woman", {"name": name, **kw}, by=USERNAME, facility=FACILITY_ID, now=now)
+        return store.create("woman", {"name": name, **kw}, by=USERNAME, facility=FACILITY_ID, now=now).record
     return {
         "amina": add("Amina Test Wanjiru", birth_date="1994-05-02", phone="+254 700 000 001", register_no="ANC-0001"),
         "grace": add("Grace Example Otieno", birth_date="1990-01-15", phone="0711 111 222", register_no="ANC-0002"),

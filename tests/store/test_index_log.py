@@ -15,7 +15,8 @@ def test_one_index_line_per_new_record(store, data_dir, woman, pregnancy, now):
 
 def test_another_stores_appends_are_seen(data_dir, store, now):
     other = Store(data_dir)
-    w = other.create("woman", {"name": "Seen Elsewhere", "stated_age": 25}, by=USERNAME, facility=FACILITY_ID, now=now)
+    w = other.create("woman", {"name": "Seen Elsewhere", "stated_age": 25}, by=USERNAME, facility=FACILITY_ID,
+                     now=now).record
     assert store.get(w["id"])["name"] == "Seen Elsewhere"
 
 
@@ -25,7 +26,7 @@ def test_a_torn_last_index_line_is_ignored_then_trimmed(data_dir, store, woman, 
         fh.write(b"half-written-id test-cl")
     s = Store(data_dir)
     assert s.get(woman["id"]) is not None
-    w = s.create("woman", {"name": "After Tear", "stated_age": 25}, by=USERNAME, facility=FACILITY_ID, now=now)
+    w = s.create("woman", {"name": "After Tear", "stated_age": 25}, by=USERNAME, facility=FACILITY_ID, now=now).record
     assert b"half-written" not in index.read_bytes()
     assert Store(data_dir).get(w["id"]) is not None
 

@@ -8,7 +8,7 @@ from collections import Counter
 import pytest
 
 import clinic.store.journal as journal_module
-import clinic.store.store as store_module
+import clinic.store.writer as writer_module
 from clinic.store import Store
 from tests.conftest import FACILITY_ID, NOW, USERNAME, write_config
 from tests.store.foreign import mixed_batch, world
@@ -34,7 +34,7 @@ def _lines(store: Store, ids=None) -> Counter:
 
 def _typing(store, pregnancy, rid="t-1"):
     return store.create("typing", {"abo": "O", "rhd": "negative", "tested_on": "2026-03-02"}, by=USERNAME,
-                        facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=NOW)
+                        facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=NOW).record
 
 
 def test_crash_between_partition_write_and_audit_append_keeps_the_audit_line(data_dir, store, pregnancy,
@@ -42,7 +42,7 @@ def test_crash_between_partition_write_and_audit_append_keeps_the_audit_line(dat
     def crash(path, lines):
         raise Crash("killed after the partition write")
 
-    monkeypatch.setattr(store_module, "append_lines", crash)
+    monkeypatch.setattr(writer_module, "append_lines", crash)
     with pytest.raises(Crash):
         _typing(store, pregnancy)
     monkeypatch.undo()
@@ -74,7 +74,7 @@ def test_crash_before_the_partition_write_leaves_no_record_and_no_audit_line(dat
 
 
 def test_the_same_store_object_settles_its_own_interrupted_write(data_dir, store, pregnancy, monkeypatch):
-    monkeypatch.setattr(store_module, "append_lines", lambda path, lines: (_ for _ in ()).throw(Crash()))
+    monkeypatch.setattr(writer_module, "append_lines", lambda path, lines: (_ for _ in ()).throw(Crash()))
     with pytest.raises(Crash):
         store.amend(pregnancy["id"], {"parity": 0, "gravidity": 1}, by=USERNAME, reason="typo", now=NOW)
     monkeypatch.undo()
@@ -83,7 +83,7 @@ def test_the_same_store_object_settles_its_own_interrupted_write(data_dir, store
 
 
 def test_crash_during_recovery_does_not_write_an_audit_line_twice(data_dir, store, pregnancy, monkeypatch):
-    monkeypatch.setattr(store_module, "append_lines", lambda path, lines: (_ for _ in ()).throw(Crash()))
+    monkeypatch.setattr(writer_module, "append_lines", lambda path, lines: (_ for _ in ()).throw(Crash()))
     with pytest.raises(Crash):
         _typing(store, pregnancy)
     monkeypatch.undo()
@@ -119,7 +119,7 @@ def test_crash_midway_through_a_bulk_import_keeps_audit_and_store_in_step(tmp_pa
                                                                           monkeypatch, crash_at):
     (crashed, reference), batch = _batch_stores(tmp_path, password_hash)
     store = Store(crashed)
-    real = store_module.atomic_write_bytes
+    real = writer_module.atomic_write_bytes
     seen = []
 
     def die_on_nth_partition(path, payload):
@@ -128,7 +128,7 @@ def test_crash_midway_through_a_bulk_import_keeps_audit_and_store_in_step(tmp_pa
             raise Crash(f"killed before partition {crash_at} was replaced")
         real(path, payload)
 
-    monkeypatch.setattr(store_module, "atomic_write_bytes", die_on_nth_partition)
+    monkeypatch.setattr(writer_module, "atomic_write_bytes", die_on_nth_partition)
     with pytest.raises(Crash):
         store.merge_foreign_many([dict(r) for r in batch], now=NOW)
     monkeypatch.undo()

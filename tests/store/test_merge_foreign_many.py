@@ -59,6 +59,7 @@ def _twin_stores(tmp_path, password_hash, rng, women=10):
     return stores, mixed_batch(rng, records)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6])
 def test_batch_equals_merge_foreign_record_by_record(tmp_path, password_hash, seed):
     rng = random.Random(seed)
@@ -137,18 +138,18 @@ def test_every_created_or_updated_record_has_its_audit_line(store):
 
 
 def test_each_touched_partition_is_rewritten_once(store, data_dir, monkeypatch):
-    import clinic.store.store as store_module
+    import clinic.store.writer as writer_module
 
     rng = random.Random(6)
     records = world(rng, 12)
     writes: Counter[str] = Counter()
-    real = store_module.atomic_write_bytes
+    real = writer_module.atomic_write_bytes
 
     def counting(path, payload):
         writes[path.relative_to(data_dir).as_posix()] += 1
         real(path, payload)
 
-    monkeypatch.setattr(store_module, "atomic_write_bytes", counting)
+    monkeypatch.setattr(writer_module, "atomic_write_bytes", counting)
     store.merge_foreign_many(mixed_batch(rng, records), now=NOW)
     partitions = {k: n for k, n in writes.items() if not k.rsplit("/", 1)[-1].startswith(".")}
     assert len(partitions) > 3 and set(partitions.values()) == {1}
@@ -157,12 +158,12 @@ def test_each_touched_partition_is_rewritten_once(store, data_dir, monkeypatch):
 
 def test_audit_and_index_are_appended_once_per_file(store, monkeypatch):
     import clinic.store.index as index_module
-    import clinic.store.store as store_module
+    import clinic.store.writer as writer_module
 
     rng = random.Random(7)
     records = world(rng, 12)
     calls: Counter[str] = Counter()
-    real_store, real_index = store_module.append_lines, index_module.append_lines
+    real_writer, real_index = writer_module.append_lines, index_module.append_lines
 
     def spy(real):
         def f(path, lines):
@@ -170,7 +171,7 @@ def test_audit_and_index_are_appended_once_per_file(store, monkeypatch):
             real(path, lines)
         return f
 
-    monkeypatch.setattr(store_module, "append_lines", spy(real_store))
+    monkeypatch.setattr(writer_module, "append_lines", spy(real_writer))
     monkeypatch.setattr(index_module, "append_lines", spy(real_index))
     store.merge_foreign_many(records, now=NOW)
     assert calls["index.log"] == 1
@@ -188,6 +189,7 @@ def _audit_lines(store: Store, ids=None) -> Counter:
     return Counter(json.dumps(a, sort_keys=True) for a in store.audit() if ids is None or a["id"] in ids)
 
 
+@pytest.mark.slow
 def test_sigkill_during_a_bulk_import_leaves_each_record_whole_or_absent(tmp_path, password_hash):
     from tests.store.worker import NOW as WORKER_NOW
 
@@ -225,6 +227,7 @@ def test_sigkill_during_a_bulk_import_leaves_each_record_whole_or_absent(tmp_pat
         assert final.check(now=WORKER_NOW).ok
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_batch_order_does_not_change_the_stored_records(tmp_path, password_hash, seed):
     rng = random.Random(seed)

@@ -6,8 +6,7 @@ import json
 import pytest
 
 from clinic.records import schema
-from clinic.store import Store, StoreError
-from clinic.store import migrate
+from clinic.store import Store, StoreError, migrate
 from clinic.store.backup import list_backups
 from tests.conftest import FACILITY_ID
 

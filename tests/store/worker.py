@@ -36,7 +36,7 @@ def main(argv: list[str]) -> None:
         tag = argv[4] if cmd == "create" else "k"
         for i in range(n):
             rec = store.create("typing", typing_fields(i), by=f"worker-{tag}", facility="test-clinic",
-                               pregnancy_id=pid, now=NOW)
+                               pregnancy_id=pid, now=NOW).record
             out.write(rec["id"] + "\n")
             out.flush()
     elif cmd == "amend":

@@ -5,7 +5,6 @@ from __future__ import annotations
 import re
 import uuid
 from datetime import datetime, timedelta, timezone
-
 from zoneinfo import ZoneInfo
 
 import pytest
@@ -152,14 +151,14 @@ def booked(store):
     """A woman at about 20 weeks, RhD negative, with a negative booking screen."""
     w = store.create("woman", {"name": "Amina Testcase", "birth_date": "1995-03-04", "phone": "0700 111 222",
                                "register_no": "T-001", "village": "Riverbend"},
-                     by="mwangi", facility="test-clinic")
+                     by="mwangi", facility="test-clinic").record
     p = store.create("pregnancy", {"booked_on": days_ago(60), "lmp": days_ago(140), "status": "ongoing",
                                    "gravidity": 2, "parity": 1},
-                     by="mwangi", facility="test-clinic", woman_id=w["id"])
+                     by="mwangi", facility="test-clinic", woman_id=w["id"]).record
     t = store.create("typing", {"abo": "O", "rhd": "negative", "tested_on": days_ago(59)},
-                     by="mwangi", facility="test-clinic", pregnancy_id=p["id"])
+                     by="mwangi", facility="test-clinic", pregnancy_id=p["id"]).record
     s = store.create("screen", {"sampled_at": at_ago(days=59), "result": "negative"},
-                     by="mwangi", facility="test-clinic", pregnancy_id=p["id"])
+                     by="mwangi", facility="test-clinic", pregnancy_id=p["id"]).record
     return {"woman": w, "pregnancy": p, "typing": t, "screen": s}
 
 

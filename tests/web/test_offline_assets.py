@@ -13,6 +13,9 @@ from clinic.web import STATIC_DIR
 from clinic.web.setup_views import static_version
 
 VENDOR = STATIC_DIR / "vendor"
+# The page-side outbox scripts in the order base.html loads them (static/js/outbox/core.js).
+OUTBOX_SCRIPTS = ["queue", "queue-send", "core", "status", "worker", "kept", "form-request", "form-messages",
+                  "forms", "page", "start"]
 
 
 def sw_config(client) -> dict:
@@ -33,7 +36,7 @@ def test_worker_is_served_for_the_whole_site_and_never_stale(anon):
 
 def test_worker_precaches_the_app_shell(anon):
     cfg = sw_config(anon)
-    for path in ("/static/js/outbox.js", "/static/js/net-queue.js", "/static/js/app.js",
+    for path in (*(f"/static/js/outbox/{name}.js" for name in OUTBOX_SCRIPTS), "/static/js/app.js",
                  "/static/vendor/idb-keyval/idb-keyval.umd.js", "/static/css/app.css", "/static/icons/icon-192.png"):
         assert path in cfg["precache"]
     assert cfg["shell"] == ["/outbox", "/offline"]
@@ -42,6 +45,32 @@ def test_worker_precaches_the_app_shell(anon):
         r = anon.get(path)
         r.close()
         assert r.status_code == 200, path
+
+
+def test_every_page_loads_the_outbox_scripts_in_order(anon):
+    html = anon.get("/signin").get_data(as_text=True)
+    loaded = re.findall(r'<script src="/static/js/outbox/([\w-]+)\.js"></script>', html)
+    assert loaded == OUTBOX_SCRIPTS
+    assert sorted(loaded) == sorted(p.stem for p in (STATIC_DIR / "js" / "outbox").glob("*.js")), \
+        "a script in static/js/outbox is not loaded by base.html (or one loaded is missing)"
+    assert html.index("/static/vendor/idb-keyval/idb-keyval.umd.js") < html.index("/static/js/outbox/queue.js")
+
+
+def test_worker_imports_the_outbox_queue_it_shares_with_the_pages():
+    sw = (STATIC_DIR / "sw.js").read_text(encoding="utf-8")
+    assert ('importScripts("/static/vendor/idb-keyval/idb-keyval.umd.js", "/static/js/outbox/queue.js", '
+            '"/static/js/outbox/queue-send.js");') in sw
+
+
+def test_pages_kept_before_the_split_get_the_same_scripts_in_the_same_order():
+    sw = (STATIC_DIR / "sw.js").read_text(encoding="utf-8")
+    m = re.search(r"var REPLACED_SCRIPTS = \{(.*?)\};", sw, re.S)
+    assert m, "static/sw.js has no REPLACED_SCRIPTS"
+    replaced = re.findall(r'"(/static/js/[\w.-]+)": \[([^\]]*)\]', m.group(1))
+    assert [src for src, _ in replaced] == ["/static/js/net-queue.js", "/static/js/outbox.js"]
+    assert re.findall(r'"([\w-]+)"', "".join(names for _, names in replaced)) == OUTBOX_SCRIPTS
+    for src, _ in replaced:
+        assert not (STATIC_DIR / src.removeprefix("/static/")).exists(), src
 
 
 def test_shell_pages_need_no_sign_in(anon):
@@ -104,7 +133,8 @@ def test_each_vendored_library_has_its_licence_version_and_unchanged_files(lib):
 
 
 def test_nothing_is_fetched_from_outside_the_laptop():
-    ours = [STATIC_DIR / "sw.js", *sorted((STATIC_DIR / "js").glob("*.js")), *sorted((STATIC_DIR / "css").glob("*.css"))]
+    ours = [STATIC_DIR / "sw.js", *sorted((STATIC_DIR / "js").rglob("*.js")),
+            *sorted((STATIC_DIR / "css").glob("*.css"))]
     templates = sorted((Path(__file__).parents[2] / "clinic" / "web" / "templates").rglob("*.html"))
     for path in ours + templates:
         text = path.read_text(encoding="utf-8")

@@ -32,7 +32,7 @@ def test_record_page_links_a_form_for_every_entry_kind(clinician, booked):
 def test_due_dose_has_a_record_this_dose_link_with_defaults(client, store, booked):
     pid = booked["pregnancy"]["id"]
     ev = store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": at_ago(hours=1)},
-                      by="mwangi", facility="test-clinic", pregnancy_id=pid)
+                      by="mwangi", facility="test-clinic", pregnancy_id=pid).record
     html = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
     m = re.search(r'href="(/pregnancies/[^"]+/add/dose\?[^"]+)">Record this dose', html)
     assert m
@@ -100,7 +100,7 @@ def test_api_pregnancy_returns_woman_entries_and_plan(client, booked):
 
 def test_base_layout_has_the_offline_hooks(client):
     html = client.get("/").get_data(as_text=True)
-    for hook in ('<span id="net-state"></span>', '<span id="outbox-count"></span>', "/static/js/outbox.js",
+    for hook in ('<span id="net-state"></span>', '<span id="outbox-count"></span>', "/static/js/outbox/start.js",
                  "/static/js/app.js", "/static/css/app.css", 'name="viewport"',
                  'rel="manifest" href="/manifest.webmanifest"'):
         assert hook in html, hook

@@ -9,7 +9,7 @@ from tests.web.conftest import at_ago
 def _move(store, move, vials, lot="LOT-A", expiry="2030-06-30", hours=5):
     return store.create("stock", {"move": move, "at": at_ago(hours=hours), "product": "Anti-D 1500",
                                   "vial_iu": 1500, "lot": lot, "lot_expiry": expiry, "vials": vials},
-                        by="mwangi", facility="test-clinic")
+                        by="mwangi", facility="test-clinic").record
 
 
 def test_stock_page_shows_on_hand_by_lot(client, store):
@@ -18,7 +18,8 @@ def test_stock_page_shows_on_hand_by_lot(client, store):
     _move(store, "cold-chain-break", 2, hours=7)
     _move(store, "received", 3, lot="LOT-OLD", expiry="2020-01-01", hours=6)
     html = client.get("/stock").get_data(as_text=True)
-    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td><strong>LOT-A</strong><br><small>Anti-D 1500 \(1500 IU\)</small></td>.*?</tr>",
+    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td><strong>LOT-A</strong>"
+                    r"<br><small>Anti-D 1500 \(1500 IU\)</small></td>.*?</tr>",
                     html).group(0)
     assert "<td>7</td><td>10500</td>" in row
     assert re.search(r'(?s)<tr class="expired">.*?LOT-OLD.*?expired', html)
@@ -38,7 +39,8 @@ def test_stock_form_error_names_the_field_and_range(client, store):
                                     "vial_iu": "20", "lot": "X", "lot_expiry": "2031-01-01", "vials": "0"})
     assert r.status_code == 422
     html = r.get_data(as_text=True)
-    assert re.search(r'data-error-for="vial_iu"[^>]*>Vial size \(IU\) 20 is outside the allowed range 50 to 15000', html)
+    assert re.search(r'data-error-for="vial_iu"[^>]*>'
+                     r'Vial size \(IU\) 20 is outside the allowed range 50 to 15000', html)
     assert re.search(r'data-error-for="vials"[^>]*>Vials', html)
     assert not list(store.iter_records(kind="stock"))
 
@@ -76,7 +78,7 @@ def test_a_dose_links_to_taking_its_vials_off_the_stock(client, store, booked):
     dose = store.create("dose", {"given_at": at_ago(hours=2), "amount": 1500, "unit": "IU", "route": "IM",
                                  "product": "Anti-D 1500", "lot": "L-9", "lot_expiry": "2030-01-01",
                                  "indication": "routine-antenatal", "given_by": "Midwife Test"},
-                        by="mwangi", facility="test-clinic", pregnancy_id=pid)
+                        by="mwangi", facility="test-clinic", pregnancy_id=pid).record
     page = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
     m = re.search(r'href="(/stock\?[^"]+)">Take the vials off the stock', page)
     assert m

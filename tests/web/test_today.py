@@ -15,7 +15,7 @@ TZ = ZoneInfo("Africa/Nairobi")
 @pytest.fixture
 def event_2h_ago(store, booked):
     ev = store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": at_ago(hours=2)},
-                      by="mwangi", facility="test-clinic", pregnancy_id=booked["pregnancy"]["id"])
+                      by="mwangi", facility="test-clinic", pregnancy_id=booked["pregnancy"]["id"]).record
     return ev
 
 
@@ -106,17 +106,22 @@ def test_alerts_are_shown_on_today(client, store, booked):
 
 def test_a_woman_brought_on_her_card_is_on_today_and_bundle_copies_are_not(client, store):
     def _woman_with_event(name, origin):
-        w = store.create("woman", {"name": name, "stated_age": 30}, by="x", facility="other-clinic", origin=origin)
+        w = store.create("woman", {"name": name, "stated_age": 30}, by="x", facility="other-clinic",
+                         origin=origin).record
         p = store.create("pregnancy", {"booked_on": days_ago(100), "lmp": days_ago(150), "status": "ongoing"},
-                         by="x", facility="other-clinic", woman_id=w["id"], origin=origin)
+                         by="x", facility="other-clinic", woman_id=w["id"], origin=origin).record
         store.create("typing", {"abo": "A", "rhd": "negative", "tested_on": days_ago(99)}, by="x",
                      facility="other-clinic", pregnancy_id=p["id"], origin=origin)
         store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": at_ago(hours=3)}, by="x",
                      facility="other-clinic", pregnancy_id=p["id"], origin=origin)
         return p
 
-    card = _woman_with_event("Carded Mover", {"via": "card", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"})
-    bundle = _woman_with_event("Bundled Copy", {"via": "bundle", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"})
+    card = _woman_with_event(
+        "Carded Mover", {"via": "card", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"}
+    )
+    bundle = _woman_with_event(
+        "Bundled Copy", {"via": "bundle", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"}
+    )
     ids = {i["pregnancy_id"] for i in client.get("/api/v1/worklist").get_json()["items"]}
     assert card["id"] in ids and bundle["id"] not in ids
 

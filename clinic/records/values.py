@@ -1,7 +1,13 @@
-"""Gestational age as whole days, written weeks+days ("30+2")."""
+"""Values every layer writes the same way: gestational age as whole days written weeks+days
+("30+2"), and datetimes stored as UTC text ("2026-05-01T08:30:00Z").
+
+The lowest module of the project: records, the care engine and everything above read and
+write these through here, so it imports nothing of ours.
+"""
 from __future__ import annotations
 
 import re
+from datetime import datetime, timezone
 
 _WEEKS_DAYS = re.compile(r"^\s*(\d{1,2})\s*(?:\+|w\s*)(\d)\s*d?\s*$", re.IGNORECASE)
 _WEEKS_ONLY = re.compile(r"^\s*(\d{1,2})\s*w?\s*$", re.IGNORECASE)
@@ -50,3 +56,13 @@ def format_ga(days: int) -> str:
 def ga_weeks(days: int | float) -> float:
     """Days to decimal weeks."""
     return days / 7.0
+
+
+def utc_text(dt: datetime) -> str:
+    """A timezone-aware datetime as stored: UTC, seconds, trailing Z."""
+    return dt.astimezone(timezone.utc).replace(microsecond=0).strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def parse_utc(text: str) -> datetime:
+    """A stored datetime string back to an aware UTC datetime."""
+    return datetime.fromisoformat(text.replace("Z", "+00:00")).astimezone(timezone.utc)
