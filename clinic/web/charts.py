@@ -11,6 +11,7 @@ from typing import Callable, Iterable
 
 from markupsafe import Markup, escape
 
+from clinic.care.formatting import format_against
 from clinic.records.values import format_ga
 
 W, H = 360, 240
@@ -59,14 +60,21 @@ def _frame(title: str, x_lo: int, x_hi: int, y_ticks: Iterable[tuple[float, str]
             continue
         x = _x(wk * 7, x_lo, x_hi)
         out.append(f'<line class="grid" x1="{x:.1f}" y1="{TOP}" x2="{x:.1f}" y2="{H - BOTTOM}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{x:.1f}" y="{H - BOTTOM + 14}" text-anchor="middle" fill="{MUTED}">{wk}</text>')
+        out.append(f'<text class="tick" x="{x:.1f}" y="{H - BOTTOM + 14}" text-anchor="middle" '
+                   f'fill="{MUTED}">{wk}</text>')
     out.append(f'<text class="axis" x="{(LEFT + W - RIGHT) / 2:.0f}" y="{H - 4}" text-anchor="middle" '
                f'fill="{MUTED}">gestational age (weeks)</text>')
     for v, label in y_ticks:
         y = _y(v, y_lo, y_hi)
         out.append(f'<line class="grid" x1="{LEFT}" y1="{y:.1f}" x2="{W - RIGHT}" y2="{y:.1f}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{LEFT - 4}" y="{y + 4:.1f}" text-anchor="end" fill="{MUTED}">{escape(label)}</text>')
+        out.append(f'<text class="tick" x="{LEFT - 4}" y="{y + 4:.1f}" text-anchor="end" '
+                   f'fill="{MUTED}">{escape(label)}</text>')
     return out
+
+
+def _series(coords: list[tuple[float, float]]) -> str:
+    pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in coords)
+    return f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="{pts}"/>'
 
 
 def titre_chart(points: list[tuple[int, int, str]]) -> Markup | None:
@@ -82,10 +90,10 @@ def titre_chart(points: list[tuple[int, int, str]]) -> Markup | None:
         series = [p for p in points if p[2] == ab]
         coords = [(_x(g, x_lo, x_hi), _y(math.log2(t), 0, top)) for g, t, _ in series]
         if len(coords) > 1:
-            out.append(f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="' + " ".join(f"{x:.1f},{y:.1f}" for x, y in coords) + '"/>')
-        for (x, y), (g, t, _) in zip(coords, series):
-            out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{escape(ab)} 1:{t} at '
-                       f'{format_ga(g)}</title></circle>')
+            out.append(_series(coords))
+        for (x, y), (g, t, _) in zip(coords, series, strict=True):
+            out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{escape(ab)} '
+                       f'1:{t} at {format_ga(g)}</title></circle>')
         lx, ly = coords[-1]
         out.append(f'<text class="label" x="{min(lx + 6, W - RIGHT - 40):.1f}" y="{max(ly - 6, TOP + 10):.1f}" '
                    f'fill="{INK}">{escape(ab)}</text>')
@@ -121,12 +129,14 @@ def mca_chart(points: list[tuple[int, float]], median_fn: Callable[[int], float]
                    f'y="{_y(mom * medians[d], 0, y_hi) - 4:.1f}" text-anchor="end" fill="{MUTED}">{label}</text>')
     coords = [(_x(g, x_lo, x_hi), _y(v, 0, y_hi)) for g, v in points]
     if len(coords) > 1:
-        out.append(f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="' + " ".join(f"{x:.1f},{y:.1f}" for x, y in coords) + '"/>')
-    for (x, y), (g, v) in zip(coords, points):
+        out.append(_series(coords))
+    cuts = [mom for mom, _, _ in lines]
+    for (x, y), (g, v) in zip(coords, points, strict=True):
         mom_txt = ""
         if valid[0] <= g <= valid[1]:
-            mom_txt = f" ({v / median_fn(g):.2f} MoM)"
-        out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{v:g} cm/s at {format_ga(g)}'
-                   f'{mom_txt}</title></circle>')
+            # beside the drawn MoM curves: never rounded onto one it has not reached
+            mom_txt = f" ({format_against(v / median_fn(g), cuts)} MoM)"
+        out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{v:g} cm/s at '
+                   f'{format_ga(g)}{mom_txt}</title></circle>')
     out.append("</svg>")
     return Markup("".join(out))

@@ -27,7 +27,7 @@ def test_every_calculator_has_an_example():
 
 def test_calculators_index_lists_them_all(client):
     html = client.get("/calc/").get_data(as_text=True)
-    for key, c in CALCULATORS.items():
+    for key in CALCULATORS:
         assert f'href="/calc/{key}"' in html
 
 
@@ -69,6 +69,15 @@ def test_mca_mom_matches_the_care_engine(client):
 
     j = client.get("/api/v1/calc/mca?psv_cm_s=45&ga_days=28%2B0").get_json()
     assert j["result"]["mom"] == pytest.approx(mca_psv_mom(45, 196), abs=1e-4)
+
+
+def test_mca_mom_just_below_a_threshold_is_not_shown_as_it(client):
+    # issue 11 rule 5: a MoM below 1.50 (Mari 2000 moderate, from memory) never reads "1.50"
+    from clinic.care import mca_psv_median
+
+    psv = round(1.49996 * mca_psv_median(196), 5)
+    html = client.get(f"/calc/mca?psv_cm_s={psv}&ga_days=28%2B0").get_data(as_text=True)
+    assert "(just below 1.50) MoM" in html and ">1.50 MoM" not in html
 
 
 @pytest.mark.parametrize("query,field,text", [
