@@ -350,6 +350,15 @@ STORIES: tuple[Story, ...] = (
           ("40+1", last_month(3, 3)), tuple(_neg_booking() + _routine("28+4") + birth(last_month(3, 3))),
           Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Kivuli Ridge", age=36,
           gravidity=5, parity=4),
+    Story("a-screen-positive", "Nasra Wekesa-Lund", "clinic-a", PROPH,
+          "THE UNANSWERED SCREEN: booked late at 20+1, RhD negative, antibody screen positive but no "
+          "antibody identified yet: an identification task (a week) and an alert for a clinician; "
+          "routine anti-D is still planned",
+          ("20+4", ago()), (booking_typing(ago(days=3, hours=1), "negative"),
+                            screen(ago(days=3), "positive", label="booking-screen")),
+          Expect(PROPH, "negative", items={"antibody-identification": ("due",), "routine-dose": ("not-yet-due",)},
+                 closes_ahead=("antibody-identification",), alerts=("antibody-unidentified",)),
+          booked="20+1", village="Sokoro", age=29, gravidity=3, parity=2),
 
     # ---------------- clinic-b: Rusoka Health Centre (acog-2017, 300 µg at 28 weeks) -------------
     _positive("b-pos-1", "Joyce Wafula", "clinic-b", "16+0", "Rusoka", abo="O", age=25),
@@ -400,16 +409,27 @@ STORIES: tuple[Story, ...] = (
           ("40+0", ago(hours=10)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(ago(hours=10))),
           Expect(PROPH, "negative", items={"postpartum-dose": ("due",)}, closes_ahead=("postpartum-dose",),
                  doses={"postpartum-dose": 1500}), village="Rusoka", age=26),
+    Story("b-pp-large-fmh", "Rehema Lindahl", "clinic-b", PROPH,
+          "THE FMH TOTAL: born 20 hours ago, baby RhD positive, Kleihauer 0.3 % (15 mL fetal blood): "
+          "two 300 µg vials in all, so the standard 300 µg plus ONE more, not two more",
+          ("39+6", ago(hours=20)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(ago(hours=20)) + [
+              kleihauer(after("birth", hours=2), 0.3, covers="birth")]),
+          Expect(PROPH, "negative", items={"postpartum-dose": ("due",), "postpartum-fmh-dose": ("due",)},
+                 closes_ahead=("postpartum-fmh-dose",), alerts=("fmh-large",),
+                 doses={"postpartum-dose": 1500, "postpartum-fmh-dose": 1500}),
+          village="Mavuno Flats", age=31, gravidity=3, parity=2),
     Story("b-lm-on-time", "Sabina Kerubo", "clinic-b", PROPH,
           "Born last month, dose 30 hours after birth (on time)",
-          ("38+6", last_month(19, 22)), tuple(_neg_booking() + _routine("28+1", 300, "ug") + birth(last_month(19, 22)) + [
+          ("38+6", last_month(19, 22)), tuple(_neg_booking() + _routine("28+1", 300, "ug")
+                                              + birth(last_month(19, 22)) + [
               rosette(after("birth", hours=4), "negative", covers="birth"),
               dose(after("birth", hours=30), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "on-time"}),
           village="Oloshi", age=24),
     Story("b-lm-late", "Lucia Mwende", "clinic-b", PROPH,
           "Born last month, dose given on day 6 (late)",
-          ("39+3", last_month(10, 11)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(last_month(10, 11)) + [
+          ("39+3", last_month(10, 11)), tuple(_neg_booking() + _routine("28+0", 300, "ug")
+                                              + birth(last_month(10, 11)) + [
               rosette(after("birth", hours=5), "negative", covers="birth"),
               dose(after("birth", days=6), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
@@ -422,7 +442,8 @@ STORIES: tuple[Story, ...] = (
           gravidity=4, parity=3),
     Story("b-lm-baby-neg", "Ylva Achola", "clinic-b", PROPH,
           "Born last month, baby RhD negative: postpartum dose not needed",
-          ("39+2", last_month(16, 8)), tuple(_neg_booking() + _routine("28+2", 300, "ug") + birth(last_month(16, 8), baby_rhd="negative")),
+          ("39+2", last_month(16, 8)), tuple(_neg_booking() + _routine("28+2", 300, "ug")
+                                             + birth(last_month(16, 8), baby_rhd="negative")),
           Expect(ENDED, items={"postpartum-dose": ("not-needed",)}), village="Oloshi", age=28),
     Story("b-lm-routine", "Miriam Koros", "clinic-b", PROPH,
           "Routine window last month: 300 µg given at 28+1 early last month (on time)",
@@ -511,7 +532,8 @@ STORIES: tuple[Story, ...] = (
     Story("c-lm-on-time", "Dina Nafula", "clinic-c", PROPH,
           "Born last month, postpartum 500 IU 12 hours after birth (on time)",
           ("39+6", last_month(21, 4)), tuple(_neg_booking() + _routine("28+0", 500, lot="small")
-                                             + [dose(ga("34+0"), 500, "routine-antenatal", lot="small", label="routine-2")]
+                                             + [dose(ga("34+0"), 500, "routine-antenatal", lot="small",
+                                                     label="routine-2")]
                                              + birth(last_month(21, 4)) + [
               kleihauer(after("birth", hours=2), 0.01, covers="birth"),
               dose(after("birth", hours=12), 500, "postpartum", covers="birth", lot="small")]),
@@ -520,15 +542,18 @@ STORIES: tuple[Story, ...] = (
     Story("c-lm-late", "Kawira Ostberg", "clinic-c", PROPH,
           "Born last month, postpartum dose on day 5 (late)",
           ("38+5", last_month(12, 16)), tuple(_neg_booking() + _routine("28+1", 500, lot="small")
-                                              + [dose(ga("34+1"), 500, "routine-antenatal", lot="small", label="routine-2")]
+                                              + [dose(ga("34+1"), 500, "routine-antenatal", lot="small",
+                                                      label="routine-2")]
                                               + birth(last_month(12, 16)) + [
               dose(after("birth", days=5), 500, "postpartum", covers="birth", lot="small")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
           village="Kesero", age=27),
     Story("c-lm-missed", "Lovisa Anyona", "clinic-c", PROPH,
           "Born early last month at home, baby RhD positive, no dose: missed",
-          ("39+0", last_month(5, 2)), tuple(_neg_booking() + _routine("28+2", 500, lot="small") + birth(last_month(5, 2))),
-          Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6, parity=5),
+          ("39+0", last_month(5, 2)), tuple(_neg_booking() + _routine("28+2", 500, lot="small")
+                                            + birth(last_month(5, 2))),
+          Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6,
+          parity=5),
     Story("c-missed-window", "Tove Anyango", "clinic-c", PROPH,
           "Routine window closed last month without the first 500 IU (did not attend at 28 weeks)",
           ("28+0", last_month(1)), tuple(_neg_booking()),
