@@ -215,7 +215,10 @@ def fmh_dose_iu(whole_blood_ml: float, red_cells_ml: float, profile, route: str 
         n = whole_blood_ml / per
         vials = int(math.floor(n + 0.5 + _EPS)) + 1
         dose = max(fm["min_dose_iu"], vials * fm["vial_dose_iu"])
-        how = (f"{whole_blood_ml:.1f} mL / {per:g} mL per {fm['vial_dose_iu'] // 5} µg = {n:.2f}; round "
+        # the rounding boundary is the half vial: 0.4999 must not read "0.50" and then round down
+        half = math.floor(n + _EPS) + 0.5
+        how = (f"{format_against(whole_blood_ml, half * per, 1, note=False)} mL / {per:g} mL per "
+               f"{fm['vial_dose_iu'] // 5} µg = {format_against(n, half)}; round "
                f"(.5 up) and add one: {vials} x {fm['vial_dose_iu'] // 5} µg")
         return int(dose), how
     rate = fm["iu_per_ml_red_cells_im"] if route == "IM" else fm["iu_per_ml_red_cells_iv"]

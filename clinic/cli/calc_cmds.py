@@ -164,7 +164,7 @@ def mom_cmd(psv, ga, profile_id, data, as_json):
     r = calc.mca_result(psv, _ga(ga), prof)
     r["profile"] = prof.id
     s = prof.get("surveillance")
-    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_cm_s']:.1f} cm/s) "
+    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom_text']} MoM (median {r['median_cm_s']:.1f} cm/s) "
                       f"— {r['severity']}",
                       f"  thresholds: {s['mca_mom_mild']:.2f} MoM {r['threshold_mild_cm_s']:.1f}, "
                       f"{s['mca_mom_moderate']:.2f} MoM {r['threshold_moderate_cm_s']:.1f}, "
@@ -184,14 +184,15 @@ def fetal_hb_cmd(hb, ga, profile_id, data, as_json):
     prof = _profile(profile_id, data)
     r = calc.fetal_hb_result(hb, _ga(ga), prof)
     r["profile"] = prof.id
-    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_g_dl']:.1f} g/dL) "
+    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom_text']} MoM (median {r['median_g_dl']:.1f} g/dL) "
                       f"— anaemia: {r['severity']}", f"  source: {r['source']}"])
 
 
 @calc_group.command("fmh")
 @click.option("--fetal-cells", type=int, default=None, help="Fetal cells counted (Kleihauer-Betke).")
 @click.option("--cells-counted", type=int, default=None, help="Total cells counted.")
-@click.option("--percent", "percent", type=float, default=None, help="Fetal cells % (flow cytometry), instead of counts.")
+@click.option("--percent", "percent", type=float, default=None,
+              help="Fetal cells % (flow cytometry), instead of counts.")
 @click.option("--maternal-volume-ml", type=float, default=None,
               help="Maternal blood volume, mL (default: the facility's, else 5000).")
 @click.option("--height-cm", type=float, default=None, help="Estimate the blood volume from height (Nadler 1962)...")
@@ -224,8 +225,8 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
                         maternal_volume_ml=maternal_volume_ml, route=route, vial_sizes_iu=sizes)
     r["maternal_volume_basis"] = basis
     r["profile"] = prof.id
-    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal red "
-             f"cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
+    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal "
+             f"red cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
              f"anti-D needed ({route}): {_dose_text(r['dose_iu'])}  [{r['working']}]"]
     for v in r["vials_by_product"]:
         lines.append(f"  {v['vials']} vial(s) of {_dose_text(v['vial_iu'])} = {_dose_text(v['total_iu'])}")
@@ -320,7 +321,8 @@ def iut_cmd(efw_g, hc_cm, ac_cm, fl_cm, fetal_hct, target_hct, donor_hct, as_jso
             raise CareInputError("efw_g", "give --efw-g, or --hc-cm, --ac-cm and --fl-cm to estimate it (Hadlock 1985)")
         efw_g = calc.hadlock_efw(hc_cm, ac_cm, fl_cm)
     r = calc.iut_volume(efw_g, fetal_hct, target_hct, donor_hct)
-    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> {target_hct:g} %, "
+    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> "
+                      f"{target_hct:g} %, "
                       f"donor {donor_hct:g} %)", f"  {r['suggestion']}", f"  source: {r['source']}"])
 
 

@@ -90,3 +90,15 @@ def test_a_titre_trend_prints_whole_dilutions():
 def test_report_percentages_never_read_as_all_or_none_when_they_are_not(num, den, value, text):
     assert percentage(num, den) == value
     assert percentage_text(percentage(num, den)) == text
+
+
+def test_the_vial_working_never_reads_as_the_half_vial_it_falls_short_of():
+    # AABB vial rule (from memory; Sandler & Gottschall 2012, abstract): bleed / 30 mL, round
+    # (.5 up), add one. 14.997 mL is 0.4999 of a vial: it rounds down, so it must not read 0.50
+    from clinic.care.calc import fmh_dose_iu
+
+    acog = load_profile("acog-2017")
+    iu, how = fmh_dose_iu(14.997, 7.4985, acog)
+    assert iu == 1500 and "14.997 mL" in how and "0.4999 (just below 0.50)" in how
+    iu, how = fmh_dose_iu(15.0, 7.5, acog)
+    assert iu == 3000 and "15.0 mL / 30 mL per 300 µg = 0.50;" in how
