@@ -175,7 +175,8 @@ def build(data_dir: Path, facilities: int, per_facility: int, seed: int) -> dict
                 if len(recs) < 2:
                     continue
                 woman, preg = recs[0], recs[1]
-                wpart = f"{fac}/{datetime.strptime(woman['created_at'], '%Y-%m-%dT%H:%M:%SZ').replace(tzinfo=timezone.utc).astimezone(tz):%Y-%m}"
+                created = datetime.strptime(woman["created_at"], "%Y-%m-%dT%H:%M:%SZ").replace(tzinfo=timezone.utc)
+                wpart = f"{fac}/{created.astimezone(tz):%Y-%m}"
                 ppart = f"{fac}/{preg['booked_on'][:7]}"
                 for r in recs:
                     part = wpart if r["kind"] == "woman" else ppart

@@ -105,21 +105,31 @@ def main(argv=None) -> int:
         for k, m in enumerate((args.pregnancies, 2 * args.pregnancies)):
             fig = run(root / f"run{k}", args.facilities, m, now, month)
             runs.append(fig)
-            print(f"run {k + 1}: {fig['facilities']} facilities x {m} pregnancies, {fig['records_total']:,} records; "
-                  f"month of {month}: {fig['month_records']:,} records in bundles of {fig['bundle_bytes'] / 1e6:.2f} MB")
-            print(f"  import {fig['import_s']:.2f} s ({1000 * fig['import_s'] / max(1, fig['month_records']):.2f} ms a record), "
-                  f"re-import {fig['reimport_s']:.2f} s, encode {fig['encode_s']:.2f} s")
-            print(f"  report {fig['report_s']:.2f} s over {fig['cases']:,} pregnancies "
-                  f"({1000 * fig['report_s'] / max(1, fig['cases']):.2f} ms a pregnancy); "
-                  f"csv {fig['csv_s']:.2f} s, json {fig['json_s']:.2f} s, fhir {fig['fhir_s']:.2f} s, pdf {fig['pdf_s']:.2f} s")
+            print(
+                f"run {k + 1}: {fig['facilities']} facilities x {m} pregnancies, {fig['records_total']:,} records; "
+                f"month of {month}: {fig['month_records']:,} records in bundles of {fig['bundle_bytes'] / 1e6:.2f} MB"
+            )
+            print(
+                f"  import {fig['import_s']:.2f} s "
+                f"({1000 * fig['import_s'] / max(1, fig['month_records']):.2f} ms a record), "
+                f"re-import {fig['reimport_s']:.2f} s, encode {fig['encode_s']:.2f} s"
+            )
+            print(
+                f"  report {fig['report_s']:.2f} s over {fig['cases']:,} pregnancies "
+                f"({1000 * fig['report_s'] / max(1, fig['cases']):.2f} ms a pregnancy); "
+                f"csv {fig['csv_s']:.2f} s, json {fig['json_s']:.2f} s, "
+                f"fhir {fig['fhir_s']:.2f} s, pdf {fig['pdf_s']:.2f} s"
+            )
         a, b = runs
         print("ratios, run 2 / run 1 (data doubled):")
         for key in ("month_records", "import_s", "reimport_s", "cases", "report_s", "pdf_s"):
             print(f"  {key:<14} {b[key] / max(a[key], 1e-9):.2f} x")
         per_rec = b["import_s"] / max(1, b["month_records"])
         per_case = b["report_s"] / max(1, b["cases"])
-        print("extrapolated to 50 clinics x 2,000 bookings a year (about 70,000 records a month, "
-              "about 100,000 pregnancies in a 12-month trend):")
+        print(
+            "extrapolated to 50 clinics x 2,000 bookings a year (about 70,000 records a month, "
+            "about 100,000 pregnancies in a 12-month trend):"
+        )
         print(f"  import {per_rec * 70_000:.0f} s, report {per_case * 100_000:.0f} s")
     finally:
         if args.keep is None:

@@ -3,7 +3,8 @@
 Settings live in ``<data>/config.toml``, written by ``rhledger init`` and reviewed by the
 facility. Everything clinical that a facility may change (profile choice, overrides of
 profile values, population RhD-negative frequency, stocked vial sizes) is here or in the
-profile files, never a constant in code.
+profile files, never a constant in code. ``[supply]`` holds the anti-D supply forecast's
+horizon, order lead time and transfer time (defaults in ``SupplySettings``).
 """
 from __future__ import annotations
 
@@ -42,6 +43,50 @@ class Account:
 
 
 @dataclass(frozen=True)
+class SupplySettings:
+    """[supply] in config.toml: the forecast horizon, the order lead time, the transfer time."""
+
+    horizon_weeks: int = 12          # weeks forecast (1-52)
+    lead_time_days: int = 14         # days from placing an order to the vials on the shelf (0-180)
+    transfer_days: int = 3           # days to move vials between two clinics of the district (0-60)
+    upper_percentile: int = 90       # percentile of the upper figure (50-99)
+    # A district's lead time for one of its clinics, when it differs: facility id -> days.
+    facility_lead_time_days: dict[str, int] = field(default_factory=dict)
+
+    def lead_time_for(self, facility: str) -> int:
+        return self.facility_lead_time_days.get(facility, self.lead_time_days)
+
+
+_SUPPLY_RANGES = {"horizon_weeks": (1, 52), "lead_time_days": (0, 180), "transfer_days": (0, 60),
+                  "upper_percentile": (50, 99)}
+
+
+def _supply_int(table: dict, key: str, where: str, source: str, lo: int, hi: int, default: int) -> int:
+    v = table.get(key, default)
+    if isinstance(v, bool) or not isinstance(v, int) or not lo <= v <= hi:
+        raise ConfigError(f"{where}{key} {v!r} in {source}: a whole number from {lo} to {hi}")
+    return v
+
+
+def parse_supply(table: dict, source: str = CONFIG_FILE) -> SupplySettings:
+    if not isinstance(table, dict):
+        raise ConfigError(f"supply in {source} must be a table [supply]")
+    known = set(_SUPPLY_RANGES) | {"facility_lead_time_days"}
+    unknown = sorted(set(table) - known)
+    if unknown:
+        raise ConfigError(f"supply.{unknown[0]} in {source} is not a setting; allowed: {', '.join(sorted(known))}")
+    d = SupplySettings()
+    vals = {k: _supply_int(table, k, "supply.", source, lo, hi, getattr(d, k))
+            for k, (lo, hi) in _SUPPLY_RANGES.items()}
+    per = table.get("facility_lead_time_days", {})
+    if not isinstance(per, dict):
+        raise ConfigError(f"supply.facility_lead_time_days in {source} must be a table of facility id = days")
+    lo, hi = _SUPPLY_RANGES["lead_time_days"]
+    lead = {str(k): _supply_int(per, k, "supply.facility_lead_time_days.", source, lo, hi, 0) for k in per}
+    return SupplySettings(**vals, facility_lead_time_days=lead)
+
+
+@dataclass(frozen=True)
 class Settings:
     facility_id: str
     facility_name: str
@@ -56,6 +101,7 @@ class Settings:
     products: tuple[Product, ...] = ()
     backups_keep: int = 14
     accounts: tuple[Account, ...] = ()
+    supply: SupplySettings = field(default_factory=SupplySettings)
 
     @property
     def tz(self) -> ZoneInfo:
@@ -87,7 +133,9 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
     try:
         ZoneInfo(tzname)
     except (ZoneInfoNotFoundError, ValueError):
-        raise ConfigError(f"facility.timezone {tzname!r} in {source} is not an IANA time zone such as Africa/Nairobi") from None
+        raise ConfigError(
+            f"facility.timezone {tzname!r} in {source} is not an IANA time zone such as Africa/Nairobi"
+        ) from None
     freq = float(care.get("rhd_negative_frequency", 0.15))
     if not 0 < freq < 1:
         raise ConfigError(f"care.rhd_negative_frequency {freq} in {source}: allowed range is above 0 and below 1")
@@ -105,8 +153,14 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
         role = a.get("role", "midwife")
         if role not in ROLES:
             raise ConfigError(f"accounts[{i}].role {role!r} in {source}: allowed {', '.join(ROLES)}")
-        accounts.append(Account(str(_req(a, "username", f"accounts[{i}]")), a.get("display_name", a["username"]),
-                                role, str(_req(a, "password_hash", f"accounts[{i}]"))))
+        accounts.append(
+            Account(
+                str(_req(a, "username", f"accounts[{i}]")),
+                a.get("display_name", a["username"]),
+                role,
+                str(_req(a, "password_hash", f"accounts[{i}]")),
+            )
+        )
     keep = int(doc.get("backup", {}).get("keep", 14))
     if keep < 1:
         raise ConfigError(f"backup.keep {keep} in {source}: keep at least 1")
@@ -124,14 +178,17 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
         products=tuple(products),
         backups_keep=keep,
         accounts=tuple(accounts),
+        supply=parse_supply(doc.get("supply", {}), source),
     )
 
 
 def load_settings(data_dir: Path) -> Settings:
     path = Path(data_dir) / CONFIG_FILE
     if not path.exists():
-        raise ConfigError(f"{path} does not exist: run `rhledger init --data {data_dir}` first "
-                          f"(or `rhledger demo` for the demo scenario)")
+        raise ConfigError(
+            f"{path} does not exist: run `rhledger init --data {data_dir}` first "
+            f"(or `rhledger demo` for the demo scenario)"
+        )
     try:
         doc = tomllib.loads(path.read_text(encoding="utf-8"))
     except tomllib.TOMLDecodeError as e:

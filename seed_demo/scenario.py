@@ -27,8 +27,8 @@ from zoneinfo import ZoneInfo
 
 from clinic.care.calc import ug_to_iu
 from clinic.records.values import parse_ga, utc_text
-from seed_demo.sites import (DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site,
-                             site as site_def)
+from seed_demo.sites import DISTRICT_NAME, FACILITY_SITES, SITE_DEFS, SITES, TIMEZONE, Site
+from seed_demo.sites import site as site_def
 from seed_demo.stories import STORIES, Story, When, stories_at
 
 __all__ = ["SITES", "FACILITY_SITES", "build_site", "plan_site", "config_text", "DemoError", "record_id",
@@ -156,7 +156,7 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
            Planned(story.home, story, "create", "pregnancy", pid,
                    _pregnancy_fields(story, lmp, clock.local_date(booked_at)), booked_at + timedelta(minutes=2),
                    "midwife", woman_id=wid)]
-    for i, (step, t) in enumerate(zip(story.steps, times)):
+    for i, (step, t) in enumerate(zip(story.steps, times, strict=False)):
         where = step.site or story.home
         s = site_def(where)
         if step.kind == "status":
@@ -244,7 +244,7 @@ def _stock_plan(s: Site, doses: list[Planned], clock: Clock) -> list[Planned]:
     first_use = {}
     for d in doses:
         first_use[d.fields["lot"]] = min(first_use.get(d.fields["lot"], d.at), d.at)
-    for key, lot in s.lots.items():
+    for _key, lot in s.lots.items():
         # Delivered before the first dose given from it (the stories reach back months).
         t = clock.now - timedelta(days=lot.received_days_ago)
         if lot.lot in first_use:
@@ -647,4 +647,7 @@ def _district_notes(summary: dict) -> list[str]:
     for b in summary.get("bundles", []):
         notes.append(f"Bundle to import: {b['file']} ({b['records']} records from {b['facility_id']})")
     notes.append("Import them all (district page, Import) to see last month's coverage report and follow-up list")
+    a, b = SITE_DEFS["clinic-a"], SITE_DEFS["clinic-b"]
+    notes.append(f"Then Supply: {b.name} runs out of 1500 IU vials within weeks; {a.name}'s lot "
+                 f"{a.lots['short-dated'].lot} would expire unused, and the suggested transfer to {b.name} saves it")
     return notes

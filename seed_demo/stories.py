@@ -409,27 +409,18 @@ STORIES: tuple[Story, ...] = (
           ("40+0", ago(hours=10)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(ago(hours=10))),
           Expect(PROPH, "negative", items={"postpartum-dose": ("due",)}, closes_ahead=("postpartum-dose",),
                  doses={"postpartum-dose": 1500}), village="Rusoka", age=26),
-    Story("b-pp-large-fmh", "Rehema Lindahl", "clinic-b", PROPH,
-          "THE FMH TOTAL: born 20 hours ago, baby RhD positive, Kleihauer 0.3 % (15 mL fetal blood): "
-          "two 300 µg vials in all, so the standard 300 µg plus ONE more, not two more",
-          ("39+6", ago(hours=20)), tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(ago(hours=20)) + [
-              kleihauer(after("birth", hours=2), 0.3, covers="birth")]),
-          Expect(PROPH, "negative", items={"postpartum-dose": ("due",), "postpartum-fmh-dose": ("due",)},
-                 closes_ahead=("postpartum-fmh-dose",), alerts=("fmh-large",),
-                 doses={"postpartum-dose": 1500, "postpartum-fmh-dose": 1500}),
-          village="Mavuno Flats", age=31, gravidity=3, parity=2),
     Story("b-lm-on-time", "Sabina Kerubo", "clinic-b", PROPH,
           "Born last month, dose 30 hours after birth (on time)",
-          ("38+6", last_month(19, 22)), tuple(_neg_booking() + _routine("28+1", 300, "ug")
-                                              + birth(last_month(19, 22)) + [
+          ("38+6", last_month(19, 22)),
+          tuple(_neg_booking() + _routine("28+1", 300, "ug") + birth(last_month(19, 22)) + [
               rosette(after("birth", hours=4), "negative", covers="birth"),
               dose(after("birth", hours=30), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "on-time"}),
           village="Oloshi", age=24),
     Story("b-lm-late", "Lucia Mwende", "clinic-b", PROPH,
           "Born last month, dose given on day 6 (late)",
-          ("39+3", last_month(10, 11)), tuple(_neg_booking() + _routine("28+0", 300, "ug")
-                                              + birth(last_month(10, 11)) + [
+          ("39+3", last_month(10, 11)),
+          tuple(_neg_booking() + _routine("28+0", 300, "ug") + birth(last_month(10, 11)) + [
               rosette(after("birth", hours=5), "negative", covers="birth"),
               dose(after("birth", days=6), 300, "postpartum", unit="ug", covers="birth")]),
           Expect(ENDED, items={"postpartum-dose": ("done",)}, timeliness={"postpartum-dose": "late"}),
@@ -442,8 +433,8 @@ STORIES: tuple[Story, ...] = (
           gravidity=4, parity=3),
     Story("b-lm-baby-neg", "Ylva Achola", "clinic-b", PROPH,
           "Born last month, baby RhD negative: postpartum dose not needed",
-          ("39+2", last_month(16, 8)), tuple(_neg_booking() + _routine("28+2", 300, "ug")
-                                             + birth(last_month(16, 8), baby_rhd="negative")),
+          ("39+2", last_month(16, 8)),
+          tuple(_neg_booking() + _routine("28+2", 300, "ug") + birth(last_month(16, 8), baby_rhd="negative")),
           Expect(ENDED, items={"postpartum-dose": ("not-needed",)}), village="Oloshi", age=28),
     Story("b-lm-routine", "Miriam Koros", "clinic-b", PROPH,
           "Routine window last month: 300 µg given at 28+1 early last month (on time)",
@@ -550,8 +541,8 @@ STORIES: tuple[Story, ...] = (
           village="Kesero", age=27),
     Story("c-lm-missed", "Lovisa Anyona", "clinic-c", PROPH,
           "Born early last month at home, baby RhD positive, no dose: missed",
-          ("39+0", last_month(5, 2)), tuple(_neg_booking() + _routine("28+2", 500, lot="small")
-                                            + birth(last_month(5, 2))),
+          ("39+0", last_month(5, 2)),
+          tuple(_neg_booking() + _routine("28+2", 500, lot="small") + birth(last_month(5, 2))),
           Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Pellow Landing", age=37, gravidity=6,
           parity=5),
     Story("c-missed-window", "Tove Anyango", "clinic-c", PROPH,
@@ -572,6 +563,15 @@ STORIES: tuple[Story, ...] = (
           Expect(PROPH, "negative", items={"event-dose": ("done",), "event-fmh-dose": ("due",)},
                  closes_ahead=("event-fmh-dose",), alerts=("fmh-large",), doses={"event-fmh-dose": 2000}),
           village="Selvara Town", age=27),
+    Story("h-pp-large-fmh", "Rehema Lindahl", "hospital", PROPH,
+          "THE FMH TOTAL: born 20 hours ago, baby RhD positive, Kleihauer 1 % (25 mL fetal red cells): "
+          "3125 IU in all, so the standard 500 IU plus 2625 IU more, not 3125 more",
+          ("39+6", ago(hours=20)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=20)) + [
+              kleihauer(after("birth", hours=2), 1.0, covers="birth")]),
+          Expect(PROPH, "negative", items={"postpartum-dose": ("due",), "postpartum-fmh-dose": ("due",)},
+                 closes_ahead=("postpartum-fmh-dose",), alerts=("fmh-large",),
+                 doses={"postpartum-dose": 500, "postpartum-fmh-dose": 2625}),
+          village="Selvara Town", age=31, gravidity=3, parity=2),
     Story("h-pp-done", "Margit Chepngeno", "hospital", PROPH,
           "Born at the hospital 40 hours ago; postpartum 500 IU given 10 hours after birth: done",
           ("39+3", ago(hours=40)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=40)) + [

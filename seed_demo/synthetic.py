@@ -78,14 +78,16 @@ def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, 
     lmp = (booked_at - timedelta(days=booking_ga)).date()
 
     def at_ga(days: int, hour: int = 10) -> datetime:
-        return datetime(lmp.year, lmp.month, lmp.day, hour, rng.randint(0, 59), tzinfo=timezone.utc) + timedelta(days=days)
+        start = datetime(lmp.year, lmp.month, lmp.day, hour, rng.randint(0, 59), tzinfo=timezone.utc)
+        return start + timedelta(days=days)
 
     negative = rng.random() < rhd_negative_share
     birth_ga = rng.randint(37 * 7, 41 * 7 + 3)
     born = at_ga(birth_ga, rng.randint(0, 23))
     calls = [
         Call("woman", {"name": _name(rng), "stated_age": rng.randint(16, 44),
-                       "village": _name(rng).split()[0], "phone": f"+000 {rng.randint(0, 999):03d} {rng.randint(0, 9999):04d}",
+                       "village": _name(rng).split()[0],
+                       "phone": f"+000 {rng.randint(0, 999):03d} {rng.randint(0, 9999):04d}",
                        "register_no": f"{fac.upper()}-{index:06d}"}, fac, wid, booked_at - timedelta(minutes=10)),
         Call("pregnancy", {"booked_on": booked_at.date().isoformat(), "lmp": lmp.isoformat(),
                            "gravidity": (g := rng.randint(1, 6)), "parity": rng.randint(0, g - 1),
@@ -96,10 +98,12 @@ def pregnancy_calls(fac: str, index: int, *, rng: random.Random, now: datetime, 
         Call("screen", {"sampled_at": utc_text(booked_at), "result": "negative"}, fac, rid("screen-booking"),
              booked_at + timedelta(minutes=3), wid, pid),
     ]
-    lot = {"lot": f"SYN-{fac[-3:]}-{booked_at.year % 100:02d}", "lot_expiry": (booked_at + timedelta(days=500)).date().isoformat()}
+    lot = {"lot": f"SYN-{fac[-3:]}-{booked_at.year % 100:02d}",
+           "lot_expiry": (booked_at + timedelta(days=500)).date().isoformat()}
     if negative:
         t28 = at_ga(28 * 7 + rng.randint(0, 10))
-        calls.append(Call("screen", {"sampled_at": utc_text(t28), "result": "negative", "ga_days": (t28.date() - lmp).days},
+        calls.append(Call("screen", {"sampled_at": utc_text(t28), "result": "negative",
+                                     "ga_days": (t28.date() - lmp).days},
                           fac, rid("screen-28"), t28, wid, pid))
         if rng.random() < 0.9:
             calls.append(Call("dose", {"given_at": utc_text(t28 + timedelta(minutes=30)), "amount": 1500, "unit": "IU",
@@ -299,7 +303,8 @@ def main(argv: list[str] | None = None) -> int:
     ap.add_argument("--seed", type=int, default=1, help="random seed (default 1)")
     ap.add_argument("--per-month", type=int, default=40, help="bookings per facility per month (default 40)")
     ap.add_argument("--rhd-negative-share", type=float, default=0.3,
-                    help="share of RhD-negative women (default 0.3: more than a real population, to exercise the rules)")
+                    help="share of RhD-negative women "
+                         "(default 0.3: more than a real population, to exercise the rules)")
     ap.add_argument("--via", choices=VIA, default="bulk",
                     help="bulk: Store.merge_foreign_many in batches (fast, default); create: Store.create per record")
     ap.add_argument("--out", required=True, type=Path, help="data directory to write (must be empty, or use --force)")

@@ -6,7 +6,8 @@ lists the module that may.
 
     0  records               values (GA and UTC text), schema, the one validation layer
     1  care                  the care engine (pure)
-    2  config, care_inputs   installation settings; the engine's inputs built from them
+    2  config, care_inputs,  installation settings; the engine's inputs built from them;
+       supply                anti-D supply forecasting (pure, reads plans)
     3  store, signing,       the record store; facility keys, trust list, COSE;
        printing              the one PDF path (WeasyPrint)
     4  card, reports         patient-held cards; district bundles and reports
@@ -31,7 +32,7 @@ ROOT = Path(__file__).resolve().parents[1]
 LAYERS: dict[str, int] = {
     "records": 0,
     "care": 1,
-    "config": 2, "care_inputs": 2,
+    "config": 2, "care_inputs": 2, "supply": 2,
     "store": 3, "signing": 3, "printing": 3,
     "card": 4, "reports": 4,
     "web": 5, "cli": 5,

@@ -11,8 +11,9 @@ Rules:
    import (``PossibleDuplicate``) until the user chooses: ``woman_id=`` a local woman (the
    card's records are attached to her) or ``new_woman=True``.
 3. Every record is merged by its UUID through ``Store.merge_foreign_many`` (all validated
-   before any is written). A local copy with the same or a higher version is kept as it is (never overwritten by the card), so importing
-   the same card twice, or an older issue after a newer one, changes nothing.
+   before any is written). A local copy with the same or a higher version is kept as it is
+   (never overwritten by the card), so importing the same card twice, or an older issue
+   after a newer one, changes nothing.
 4. Each record taken in carries ``origin = {via: "card", facility, issue}``, and the import
    is logged in ``<data>/cards/imported.jsonl`` (pregnancy, issuer, issue, card code, counts).
 """
@@ -123,7 +124,7 @@ def import_reading(store, reading: Reading, *, data_dir: Path, by: str = IMPORTE
             continue
         incoming.append(_foreign(rec, origin, attach_to))
     # One call: every record is validated before any is written, so a card never half-imports.
-    for rec, outcome in zip(incoming, store.merge_foreign_many(incoming, by=by, now=now)):
+    for rec, outcome in zip(incoming, store.merge_foreign_many(incoming, by=by, now=now), strict=True):
         result.outcomes[rec["id"]] = outcome
     append_line(Path(data_dir) / CARDS_DIR / IMPORTED_FILE, json.dumps({
         "pregnancy_id": preg["id"], "issuer": c.issuer_id, "issue": c.issue, "card_code": reading.code,

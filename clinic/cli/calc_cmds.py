@@ -225,8 +225,9 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
                         maternal_volume_ml=maternal_volume_ml, route=route, vial_sizes_iu=sizes)
     r["maternal_volume_basis"] = basis
     r["profile"] = prof.id
-    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = {r['fetal_red_cells_ml']:.1f} mL fetal "
-             f"red cells (maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
+    lines = [f"bleed: {r['fetal_whole_blood_ml']:.1f} mL fetal whole blood = "
+             f"{r['fetal_red_cells_ml']:.1f} mL fetal red cells "
+             f"(maternal blood volume {r['maternal_volume_ml']:.0f} mL, {basis})",
              f"anti-D needed ({route}): {_dose_text(r['dose_iu'])}  [{r['working']}]"]
     for v in r["vials_by_product"]:
         lines.append(f"  {v['vials']} vial(s) of {_dose_text(v['vial_iu'])} = {_dose_text(v['total_iu'])}")
@@ -321,9 +322,16 @@ def iut_cmd(efw_g, hc_cm, ac_cm, fl_cm, fetal_hct, target_hct, donor_hct, as_jso
             raise CareInputError("efw_g", "give --efw-g, or --hc-cm, --ac-cm and --fl-cm to estimate it (Hadlock 1985)")
         efw_g = calc.hadlock_efw(hc_cm, ac_cm, fl_cm)
     r = calc.iut_volume(efw_g, fetal_hct, target_hct, donor_hct)
-    _out(as_json, r, [f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> "
-                      f"{target_hct:g} %, "
-                      f"donor {donor_hct:g} %)", f"  {r['suggestion']}", f"  source: {r['source']}"])
+    _out(
+        as_json,
+        r,
+        [
+            f"IUT volume {r['volume_ml']:.1f} mL (EFW {r['efw_g']:.0f} g, Hct {fetal_hct:g} -> {target_hct:g} %, "
+            f"donor {donor_hct:g} %)",
+            f"  {r['suggestion']}",
+            f"  source: {r['source']}",
+        ],
+    )
 
 
 def register(cli: click.Group) -> None:

@@ -278,9 +278,11 @@ def trust_group():
 
 
 @trust_group.command("build")
-@click.option("--facilities", "facilities_file", required=True, type=click.Path(exists=True, dir_okay=False, path_type=Path),
+@click.option("--facilities", "facilities_file", required=True,
+              type=click.Path(exists=True, dir_okay=False, path_type=Path),
               help="JSON list of facilities, each as `rhledger keys show --json` prints it.")
-@click.option("--out", required=True, type=click.Path(dir_okay=False, path_type=Path), help="Where to write trust.cose.")
+@click.option("--out", required=True, type=click.Path(dir_okay=False, path_type=Path),
+              help="Where to write trust.cose.")
 @click.option("--seq", type=int, default=None, help="List number (default: the current time in seconds).")
 @data_option
 @handled

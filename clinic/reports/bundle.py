@@ -171,7 +171,8 @@ def read_bundle(data: bytes, trust, *, name: str = "bundle", now: datetime | Non
     try:
         v = trust.verify(signed, on_date=now.date())
     except CoseFormatError as e:
-        raise BundleUnreadable(f"{name}: the signed header cannot be read ({e}); copy it again from the clinic") from None
+        raise BundleUnreadable(f"{name}: the signed header cannot be read ({e}); "
+                               f"copy it again from the clinic") from None
     if v.state == "unknown-issuer":
         raise BundleUntrusted(f"{name} is refused: {v.reason or 'the signer is not in the trust list'}. "
                               f"Add the clinic's key to the district trust list (compare its fingerprint "

@@ -171,7 +171,7 @@ def load_inputs(store, settings, *, now: datetime, first_month: Month | None = N
     else:
         plans = [_plan_one(own, per, now, job) for job in jobs]
     cases = []
-    for (woman, preg, ents), plan in zip(jobs, plans):
+    for (woman, preg, ents), plan in zip(jobs, plans, strict=True):
         cases.append(Case(woman, preg, [e for e in ents if not e.get("voided")], plan))
     cases.sort(key=lambda c: (c.facility, c.pregnancy.get("booked_on", ""), c.id))
     labels = {f: used.get(f, (per.get(f) or own).label) for f in facilities}

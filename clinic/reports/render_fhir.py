@@ -215,7 +215,8 @@ def _screen(r: dict, subject: str) -> list[dict]:
 
 def _fetal(r: dict, subject: str) -> dict:
     return _obs(r, subject, _own("fetal-rhd-cfdna", "Fetal RHD genotype from cell-free DNA in maternal plasma"),
-                _day(r["sampled_on"]), valueCodeableConcept=_own(f"fetal-rhd-{r['result']}", f"Fetal RHD {r['result']}"))
+                _day(r["sampled_on"]),
+                valueCodeableConcept=_own(f"fetal-rhd-{r['result']}", f"Fetal RHD {r['result']}"))
 
 
 def _fmh(r: dict, subject: str) -> dict:

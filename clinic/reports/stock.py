@@ -37,15 +37,19 @@ class LotBalance:
         return self.vials * self.vial_iu
 
 
-def balances(records, *, at: datetime, warn_days: int = EXPIRY_WARNING_DAYS, day: date | None = None) -> list[LotBalance]:
+def balances(
+    records, *, at: datetime, warn_days: int = EXPIRY_WARNING_DAYS, day: date | None = None
+) -> list[LotBalance]:
     """Balance of every lot at each facility at instant ``at`` (movements before it).
 
     ``expires_soon``: on hand, and the lot expires within ``warn_days`` days of ``at``;
     ``expired``: on hand past its expiry date. ``day`` is the local date of ``at``.
     """
     lots: dict[tuple, LotBalance] = {}
-    moves = sorted((r for r in records if r.get("kind") == "stock" and not r.get("voided")),
-                   key=lambda r: (r["at"], r.get("id", "")))
+    moves = sorted(
+        (r for r in records if r.get("kind") == "stock" and not r.get("voided")),
+        key=lambda r: (r["at"], r.get("id", "")),
+    )
     for r in moves:
         if parse_utc(r["at"]) >= at:
             continue

@@ -71,9 +71,10 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     app.register_blueprint(tools_views.bp)
     app.register_blueprint(api.bp)
 
-    from clinic.web import card_views, district_views, setup_views
+    from clinic.web import card_views, district_views, setup_views, supply_views
 
     app.register_blueprint(card_views.bp)
     app.register_blueprint(district_views.bp)
     app.register_blueprint(setup_views.bp)
+    app.register_blueprint(supply_views.bp)
     return app

@@ -225,11 +225,13 @@ CALCULATORS: dict[str, dict] = {
         _inp("hb_g_dl", "Fetal Hb (g/dL)", min=1, max=25),
         _inp("ga_days", "GA", **GA))},
     "fetal-rhd": {"title": "Chance the baby is RhD positive", "run": run_fetal_rhd, "inputs": (
-        _inp("partner_rhd", "Baby's father RhD", "choice", choices=("positive", "negative", "unknown"), default="unknown"),
+        _inp("partner_rhd", "Baby's father RhD", "choice", choices=("positive", "negative", "unknown"),
+             default="unknown"),
         _inp("partner_zygosity", "Father's RHD zygosity", "choice", choices=("homozygous", "heterozygous", "unknown"),
              default="unknown"),
         _inp("paternity_certain", "Paternity certain", "choice", choices=("yes", "no"), default="yes"),
-        _inp("fetal_rhd", "Cell-free fetal RHD", "choice", required=False, choices=("positive", "negative", "inconclusive")),
+        _inp("fetal_rhd", "Cell-free fetal RHD", "choice", required=False,
+             choices=("positive", "negative", "inconclusive")),
         _inp("rhd_negative_frequency", "RhD-negative frequency", required=False, min=0.001, max=0.999,
              help="empty: the facility's figure"))},
     "blood-volume": {"title": "Maternal blood volume (Nadler)", "run": run_blood_volume, "inputs": (

@@ -60,15 +60,19 @@ def _frame(title: str, x_lo: int, x_hi: int, y_ticks: Iterable[tuple[float, str]
             continue
         x = _x(wk * 7, x_lo, x_hi)
         out.append(f'<line class="grid" x1="{x:.1f}" y1="{TOP}" x2="{x:.1f}" y2="{H - BOTTOM}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{x:.1f}" y="{H - BOTTOM + 14}" text-anchor="middle" '
-                   f'fill="{MUTED}">{wk}</text>')
-    out.append(f'<text class="axis" x="{(LEFT + W - RIGHT) / 2:.0f}" y="{H - 4}" text-anchor="middle" '
-               f'fill="{MUTED}">gestational age (weeks)</text>')
+        out.append(
+            f'<text class="tick" x="{x:.1f}" y="{H - BOTTOM + 14}" text-anchor="middle" fill="{MUTED}">{wk}</text>'
+        )
+    out.append(
+        f'<text class="axis" x="{(LEFT + W - RIGHT) / 2:.0f}" y="{H - 4}" text-anchor="middle" '
+        f'fill="{MUTED}">gestational age (weeks)</text>'
+    )
     for v, label in y_ticks:
         y = _y(v, y_lo, y_hi)
         out.append(f'<line class="grid" x1="{LEFT}" y1="{y:.1f}" x2="{W - RIGHT}" y2="{y:.1f}" stroke="{GRID}"/>')
-        out.append(f'<text class="tick" x="{LEFT - 4}" y="{y + 4:.1f}" text-anchor="end" '
-                   f'fill="{MUTED}">{escape(label)}</text>')
+        out.append(
+            f'<text class="tick" x="{LEFT - 4}" y="{y + 4:.1f}" text-anchor="end" fill="{MUTED}">{escape(label)}</text>'
+        )
     return out
 
 
@@ -84,25 +88,37 @@ def titre_chart(points: list[tuple[int, int, str]]) -> Markup | None:
         return None
     x_lo, x_hi = _ga_range(points, 4, 44)
     top = max(4, math.ceil(math.log2(max(p[1] for p in points))) + 1)
-    ticks = [(k, f"1:{2 ** k}") for k in range(0, top + 1) if top <= 8 or k % 2 == 0]
+    ticks = [(k, f"1:{2**k}") for k in range(0, top + 1) if top <= 8 or k % 2 == 0]
     out = _frame("Antibody titre by gestational age", x_lo, x_hi, ticks, 0, top)
     for ab in sorted({p[2] for p in points}):
         series = [p for p in points if p[2] == ab]
         coords = [(_x(g, x_lo, x_hi), _y(math.log2(t), 0, top)) for g, t, _ in series]
         if len(coords) > 1:
-            out.append(_series(coords))
+            out.append(
+                f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="'
+                + " ".join(f"{x:.1f},{y:.1f}" for x, y in coords)
+                + '"/>'
+            )
         for (x, y), (g, t, _) in zip(coords, series, strict=True):
-            out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{escape(ab)} '
-                       f'1:{t} at {format_ga(g)}</title></circle>')
+            out.append(
+                f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{escape(ab)} 1:{t} at '
+                f"{format_ga(g)}</title></circle>"
+            )
         lx, ly = coords[-1]
-        out.append(f'<text class="label" x="{min(lx + 6, W - RIGHT - 40):.1f}" y="{max(ly - 6, TOP + 10):.1f}" '
-                   f'fill="{INK}">{escape(ab)}</text>')
+        out.append(
+            f'<text class="label" x="{min(lx + 6, W - RIGHT - 40):.1f}" y="{max(ly - 6, TOP + 10):.1f}" '
+            f'fill="{INK}">{escape(ab)}</text>'
+        )
     out.append("</svg>")
     return Markup("".join(out))
 
 
-def mca_chart(points: list[tuple[int, float]], median_fn: Callable[[int], float],
-              lines: Iterable[tuple[float, str, str]], valid: tuple[int, int] = (18 * 7, 40 * 7)) -> Markup | None:
+def mca_chart(
+    points: list[tuple[int, float]],
+    median_fn: Callable[[int], float],
+    lines: Iterable[tuple[float, str, str]],
+    valid: tuple[int, int] = (18 * 7, 40 * 7),
+) -> Markup | None:
     """points: (ga_days, MCA-PSV cm/s). median_fn(ga_days) -> median cm/s (from clinic.care);
     lines: the MoM curves (``mom_lines(profile)``), drawn over ``valid`` (the reference range of the median)."""
     lines = tuple(lines)
@@ -117,16 +133,20 @@ def mca_chart(points: list[tuple[int, float]], median_fn: Callable[[int], float]
     y_hi = int(math.ceil(y_max / 10.0) * 10) + 10
     ticks = [(v, str(v)) for v in range(0, y_hi + 1, 10 if y_hi <= 80 else 20)]
     out = _frame("MCA peak systolic velocity by gestational age", x_lo, x_hi, ticks, 0, y_hi)
-    out.append(f'<text class="axis" x="12" y="{TOP + 6}" transform="rotate(-90 12 {TOP + 6})" text-anchor="end" '
-               f'fill="{MUTED}">cm/s</text>')
+    out.append(
+        f'<text class="axis" x="12" y="{TOP + 6}" transform="rotate(-90 12 {TOP + 6})" text-anchor="end" '
+        f'fill="{MUTED}">cm/s</text>'
+    )
     for mom, label, cls in lines:
         if not curve_days:
             break
         pts = " ".join(f"{_x(d, x_lo, x_hi):.1f},{_y(mom * medians[d], 0, y_hi):.1f}" for d in curve_days)
         out.append(f'<polyline class="curve {cls}" fill="none" stroke-width="1.5" {CURVE_STYLE[cls]} points="{pts}"/>')
         d = curve_days[-1]
-        out.append(f'<text class="label {cls}" x="{_x(d, x_lo, x_hi) - 2:.1f}" '
-                   f'y="{_y(mom * medians[d], 0, y_hi) - 4:.1f}" text-anchor="end" fill="{MUTED}">{label}</text>')
+        out.append(
+            f'<text class="label {cls}" x="{_x(d, x_lo, x_hi) - 2:.1f}" '
+            f'y="{_y(mom * medians[d], 0, y_hi) - 4:.1f}" text-anchor="end" fill="{MUTED}">{label}</text>'
+        )
     coords = [(_x(g, x_lo, x_hi), _y(v, 0, y_hi)) for g, v in points]
     if len(coords) > 1:
         out.append(_series(coords))

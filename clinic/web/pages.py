@@ -15,6 +15,7 @@ NAV = (
     ("Book", "records.booking", "book"),
     ("Calculators", "tools.calculators", "calc"),
     ("Stock", "records.stock", "stock"),
+    ("Supply", "supply.index", "supply"),
     ("Cards", "card.index", "card"),
     ("District", "district.index", "district"),
 )
@@ -67,7 +68,7 @@ def find():
         for w in results:
             pregs = sorted(by_woman.get(w["id"], []), key=lambda p: p.get("booked_on", ""), reverse=True)
             rows.append({"woman": w, "pregnancies": pregs})
-    return render_template("find.html", q=q, rows=rows, 
+    return render_template("find.html", q=q, rows=rows,
                            nav_active="find")
 
 

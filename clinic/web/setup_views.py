@@ -27,7 +27,9 @@ bp = Blueprint("setup", __name__)
 
 SHELL_PAGES = ("/outbox", "/offline")
 # Not pre-cached: the worker itself, bookkeeping files, licences (still served on request).
-SKIP_PRECACHE = re.compile(r"(^sw\.js$|^manifest\.webmanifest$|(^|/)VERSIONS?\.txt$|(^|/)LICEN[CS]E[^/]*$|\.map$|(^|/)\.)")
+SKIP_PRECACHE = re.compile(
+    r"(^sw\.js$|^manifest\.webmanifest$|(^|/)VERSIONS?\.txt$|(^|/)LICEN[CS]E[^/]*$|\.map$|(^|/)\.)"
+)
 TEMPLATES = Path(__file__).with_name("templates")
 _version_lock = threading.Lock()
 _version_cache: dict = {}
@@ -74,9 +76,13 @@ def service_worker_response() -> Response:
         # Pages worth holding before the laptop goes out of reach (when signed in).
         "warm": [url_for("pages.today"), url_for("records.booking")],
     }
-    text, n = re.subn(r"/\*@config\*/.*?/\*@end\*/",
-                      lambda _m: "/*@config*/ var CONFIG = " + json.dumps(config) + "; /*@end*/",
-                      source.read_text(encoding="utf-8"), count=1, flags=re.S)
+    text, n = re.subn(
+        r"/\*@config\*/.*?/\*@end\*/",
+        lambda _m: "/*@config*/ var CONFIG = " + json.dumps(config) + "; /*@end*/",
+        source.read_text(encoding="utf-8"),
+        count=1,
+        flags=re.S,
+    )
     if n != 1:
         abort(500, "static/sw.js has lost its /*@config*/ … /*@end*/ line")
     resp = Response(text, mimetype="text/javascript")

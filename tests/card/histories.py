@@ -16,7 +16,8 @@ HOSPITAL = "DEMO-HOSPITAL"
 
 def _rid(n: int) -> str:
     # Random-looking but reproducible UUIDs (version 4 layout), as the store would make.
-    return str(uuid.UUID(int=(0x5EED_0000_0000_4000_8000_0000_0000_0000 + n * 0x9E3779B97F4A7C15_1234567) % (1 << 128), version=4))
+    n128 = (0x5EED_0000_0000_4000_8000_0000_0000_0000 + n * 0x9E3779B97F4A7C15_1234567) % (1 << 128)
+    return str(uuid.UUID(int=n128, version=4))
 
 
 def _entered(rec: dict) -> str:

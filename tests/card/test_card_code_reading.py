@@ -142,9 +142,14 @@ def test_random_cbor_inside_a_valid_signature_never_raises(data, clinic_key, tru
     import cbor2
     leaves = st.one_of(st.integers(-2 ** 40, 2 ** 40), st.text(max_size=8), st.binary(max_size=18),
                        st.booleans(), st.none())
-    tree = st.recursive(leaves, lambda kids: st.one_of(st.lists(kids, max_size=5),
-                                                       st.dictionaries(st.one_of(st.integers(0, 12), st.text(max_size=2)),
-                                                                       kids, max_size=5)), max_leaves=30)
+    tree = st.recursive(
+        leaves,
+        lambda kids: st.one_of(
+            st.lists(kids, max_size=5),
+            st.dictionaries(st.one_of(st.integers(0, 12), st.text(max_size=2)), kids, max_size=5),
+        ),
+        max_leaves=30,
+    )
     doc = data.draw(st.dictionaries(st.sampled_from(["v", "i", "n", "f", "w", "p", "e", "t"]), tree))
     if data.draw(st.booleans()):
         doc["v"] = 1

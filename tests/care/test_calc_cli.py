@@ -76,8 +76,10 @@ def test_fmh_blood_volume_from_height_and_weight(run):
 
 @pytest.mark.parametrize("profile, kind, ga, dose_iu, fmh", [
     ("acog-2017", "miscarriage", "10+0", 1500, False),   # ACOG PB 181: 300 µg without a 50 µg product (from memory)
-    ("bsh-2014", "ectopic", "10+0", 250, False),         # BSH 2014 key recs: minimum 250 IU before 12 weeks, no FMH test
-    ("bsh-2014", "abdominal-trauma", "20+0", 500, True), # BSH 2014 key recs: after 20 weeks 500 IU + FMH (20+0 as first day: from memory)
+    # BSH 2014 key recs: minimum 250 IU before 12 weeks, no FMH test
+    ("bsh-2014", "ectopic", "10+0", 250, False),
+    # BSH 2014 key recs: after 20 weeks 500 IU + FMH (20+0 as first day: from memory)
+    ("bsh-2014", "abdominal-trauma", "20+0", 500, True),
 ])
 def test_event_dose(run, profile, kind, ga, dose_iu, fmh):
     out = _json(run("event-dose", "--kind", kind, "--ga", ga, "--profile", profile, "--json"))

@@ -55,13 +55,20 @@ def test_bsh_bleeding_before_12_weeks_is_conditional():
     assert r.needed and r.conditional and r.dose_iu == 250
 
 
-@pytest.mark.parametrize("ga, iu, fmh", [
-    (11 * 7 + 6, 250, False),   # 11+6, listed kind: minimum 250 IU, no FMH test (BSH 2014 key recs)
-    (12 * 7, 250, False),       # 12+0: any event 12-20 weeks, minimum 250 IU, no FMH test (BSH 2014 key recs)
-    (19 * 7 + 6, 250, False),   # 19+6: still 250 IU
-    (20 * 7, 500, True),        # after 20 weeks: minimum 500 IU and an FMH test (BSH 2014 key recs; 20+0 as the first day: from memory)
-    (36 * 7, 500, True),
-])
+@pytest.mark.parametrize(
+    "ga, iu, fmh",
+    [
+        (11 * 7 + 6, 250, False),  # 11+6, listed kind: minimum 250 IU, no FMH test (BSH 2014 key recs)
+        (12 * 7, 250, False),  # 12+0: any event 12-20 weeks, minimum 250 IU, no FMH test (BSH 2014 key recs)
+        (19 * 7 + 6, 250, False),  # 19+6: still 250 IU
+        (
+            20 * 7,
+            500,
+            True,
+        ),  # after 20 weeks: minimum 500 IU and an FMH test (BSH 2014 key recs; 20+0 as the first day: from memory)
+        (36 * 7, 500, True),
+    ],
+)
 def test_bsh_bands_at_12_and_20_weeks(ga, iu, fmh):
     r = event_dose("termination", ga, BSH)
     assert (r.dose_iu, r.fmh_test_required, r.late_window_days) == (iu, fmh, 10)

@@ -24,7 +24,7 @@ def test_median_rises_with_gestation_and_is_interpolated():
     # Mari 2000 reference table: median fetal Hb rises through pregnancy (10.6 g/dL at 18 weeks to
     # 13.8 at 40); halfway between two listed weeks the linear interpolation is the mean of the two.
     ws = sorted(FETAL_HB_MEDIAN_G_DL)
-    assert all(FETAL_HB_MEDIAN_G_DL[a] < FETAL_HB_MEDIAN_G_DL[b] for a, b in zip(ws, ws[1:]))
+    assert all(FETAL_HB_MEDIAN_G_DL[a] < FETAL_HB_MEDIAN_G_DL[b] for a, b in zip(ws, ws[1:], strict=False))
     assert fetal_hb_median(29 * 7) == pytest.approx((FETAL_HB_MEDIAN_G_DL[28] + FETAL_HB_MEDIAN_G_DL[30]) / 2)
 
 

@@ -30,7 +30,8 @@ def test_acog_critical_titres(name, titre, critical):
 
 
 @pytest.mark.parametrize("iu_ml, level, critical", [
-    (3.9, "low", False),        # below 4 IU/mL: low risk (BSH 2016, from memory; the 4 IU/mL cut-off matches Bowell et al., BMJ 1982)
+    # below 4 IU/mL: low risk (BSH 2016, from memory; the 4 IU/mL cut-off matches Bowell et al., BMJ 1982)
+    (3.9, "low", False),
     (4.0, "moderate", True),    # 4-15 IU/mL: moderate, refer (BSH 2016, from memory)
     (15.0, "moderate", True),
     (15.1, "high", True),       # above 15 IU/mL: high (BSH 2016, from memory)

@@ -62,6 +62,6 @@ def test_bulk_and_create_leave_the_same_records(tmp_path, demo_now):
     """The fast path (Store.merge_foreign_many) stores exactly what Store.create/amend would."""
     kw = dict(facilities=2, pregnancies=12, seed=5, now=demo_now, per_month=1, rhd_negative_share=0.7)
     a = build_synthetic(tmp_path / "bulk", via="bulk", **kw)
-    b = build_synthetic(tmp_path / "create", via="create", **kw)
+    build_synthetic(tmp_path / "create", via="create", **kw)
     assert a["amendments"] > 0  # births happened, so amended pregnancies are compared too
     assert _records(tmp_path / "bulk") == _records(tmp_path / "create")

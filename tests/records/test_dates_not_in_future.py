@@ -15,7 +15,9 @@ def test_future_date_is_refused_naming_the_field():
 
 def test_today_in_the_facility_zone_is_allowed():
     # 09:30 UTC is 12:30 in Nairobi (UTC+3), still 16 March.
-    assert validate_record("typing", valid("typing", tested_on="2026-03-16"), now=NOW, tz=TZ)["tested_on"] == "2026-03-16"
+    assert (
+        validate_record("typing", valid("typing", tested_on="2026-03-16"), now=NOW, tz=TZ)["tested_on"] == "2026-03-16"
+    )
 
 
 def test_future_datetime_is_refused_beyond_ten_minutes_of_skew():
@@ -24,8 +26,10 @@ def test_future_datetime_is_refused_beyond_ten_minutes_of_skew():
     with pytest.raises(ValidationError) as e:
         validate_record("event", valid("event", occurred_at="2026-03-16T12:45"), now=NOW, tz=TZ)
     assert "occurred_at" in e.value.errors
-    assert validate_record("event", valid("event", occurred_at="2026-03-16T12:39"), now=NOW, tz=TZ)["occurred_at"] \
+    assert (
+        validate_record("event", valid("event", occurred_at="2026-03-16T12:39"), now=NOW, tz=TZ)["occurred_at"]
         == "2026-03-16T09:39:00Z"
+    )
 
 
 def test_naive_time_is_local_and_stored_in_utc():

@@ -33,6 +33,7 @@ def export(clinics, fid, out):
     return out
 
 
+@pytest.mark.slow
 def test_export_import_report_from_the_command_line(tmp_path, clinics, district):
     a = export(clinics, ds.A, tmp_path / "a.rhlb")
     b = export(clinics, ds.B, tmp_path / "b.rhlb")

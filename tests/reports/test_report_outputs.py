@@ -21,7 +21,9 @@ def test_csv_has_one_tidy_row_per_month_facility_and_indicator(trend):
     assert len(rows) == 12 * 3 * len(INDICATORS)
     keys = {(r["month"], r["facility"], r["indicator"]) for r in rows}
     assert len(keys) == len(rows)
-    pp = next(r for r in rows if (r["month"], r["facility"], r["indicator"]) == ("2026-11", "district", "postpartum_missed"))
+    pp = next(
+        r for r in rows if (r["month"], r["facility"], r["indicator"]) == ("2026-11", "district", "postpartum_missed")
+    )
     assert (pp["numerator"], pp["denominator"], pp["percentage"]) == ("2", "4", "50.0")
     # a zero denominator: the percentage is empty, not 0
     ev = next(r for r in rows if (r["month"], r["facility"], r["indicator"]) == ("2026-11", ds.A, "event_on_time"))
@@ -32,7 +34,11 @@ def test_json_gives_numerator_and_denominator_per_facility_and_district(november
     doc = json.loads(json.dumps(coverage_dict(november, trend)))
     assert doc["format"] == "rhledger-coverage" and doc["month"] == "2026-11"
     assert doc["facilities"][ds.B]["indicators"]["routine_not_given"] == {
-        "numerator": 1, "denominator": 3, "percentage": 33.3, "outcomes": {"not-given": 1, "on-time": 2}}
+        "numerator": 1,
+        "denominator": 3,
+        "percentage": 33.3,
+        "outcomes": {"not-given": 1, "on-time": 2},
+    }
     assert doc["district"]["indicators"]["typed_at_booking"]["numerator"] == 4
     assert doc["district"]["indicators"]["typed_at_booking"]["denominator"] == 5
     assert doc["caution"] == CAUTION
@@ -54,7 +60,7 @@ def test_follow_up_list_names_the_missed_doses(november, inputs):
     assert ("Rehema Test-Event-None", "event_none") in missed
     assert ("Sauda Test-Baby-Untyped", "postpartum_missed") in missed
     moved = [r for r in rows if r["last_seen_at"] != r["facility"]]
-    assert moved == []   # the moved woman was screened at B: nothing of hers is missed
+    assert moved == []  # the moved woman was screened at B: nothing of hers is missed
 
 
 def test_pdf_has_charts_definitions_and_caution_without_weasyprint_warnings(november, trend, weasy_warnings):

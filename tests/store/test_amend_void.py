@@ -22,7 +22,8 @@ def test_amend_keeps_earlier_values_and_bumps_the_version(store, woman, now):
 def test_amend_with_a_stale_expected_version_is_a_conflict(store, woman, now):
     store.amend(woman["id"], {"village": "A"}, by=USERNAME, reason="first edit", expected_version=1, now=now)
     with pytest.raises(Conflict) as e:
-        store.amend(woman["id"], {"village": "B"}, by=USERNAME, reason="second edit, stale", expected_version=1, now=now)
+        store.amend(woman["id"], {"village": "B"}, by=USERNAME, reason="second edit, stale", expected_version=1,
+                    now=now)
     assert e.value.current_version == 2
     assert store.get(woman["id"])["village"] == "A"
 

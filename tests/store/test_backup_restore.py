@@ -61,7 +61,9 @@ def test_altered_backup_is_refused_and_nothing_replaced(data_dir, store, woman, 
     assert [p for p in list_backups(data_dir) if "prerestore" in p.name] == []
 
 
-def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refused(data_dir, store, woman, now, tmp_path):
+def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refused(
+    data_dir, store, woman, now, tmp_path
+):
     path = store.backup(now=now)
     # Rewrite one member without updating the manifest, and drop the checksum file beside it.
     forged = tmp_path / path.name
@@ -71,6 +73,7 @@ def test_backup_with_a_consistently_altered_archive_but_no_checksum_file_is_refu
             if m.name.endswith(".json") and m.name.startswith("records/test-clinic"):
                 data = data.replace(b"Upper Ridge", b"Forged Ridg")
             import io
+
             m.size = len(data)
             dst.addfile(m, io.BytesIO(data))
     before = _tree(data_dir)

@@ -35,7 +35,8 @@ def test_init_writes_config_store_and_key(tmp_path):
     assert res.exit_code == 0, res.output
     assert "fingerprint" in res.output.lower()
     s = load_settings(d)
-    assert (s.facility_id, s.facility_name, s.timezone, s.profile) == ("hill-1", "Hill Clinic", "Africa/Kampala", "bsh-2014")
+    assert (s.facility_id, s.facility_name, s.timezone, s.profile) == (
+        "hill-1", "Hill Clinic", "Africa/Kampala", "bsh-2014")
     (acct,) = s.accounts
     from werkzeug.security import check_password_hash
     assert acct.username == "nurse" and check_password_hash(acct.password_hash, "long enough pw")
@@ -112,7 +113,8 @@ def test_check_reports_counts_and_passes(data_dir, store, pregnancy):
 
 def test_check_fails_on_a_record_that_no_longer_validates(data_dir, store, woman):
     (part,) = (data_dir / "records" / FACILITY_ID).glob("*.json")
-    part.write_text(part.read_text().replace('"stated_age"', '"x"').replace('"birth_date":"1994-05-02"', '"birth_date":"1994-13-02"'))
+    text = part.read_text().replace('"stated_age"', '"x"')
+    part.write_text(text.replace('"birth_date":"1994-05-02"', '"birth_date":"1994-13-02"'))
     res = run("check", "--data", data_dir)
     assert res.exit_code == 1
     assert "PROBLEM" in res.output and woman["id"] in res.output

@@ -6,6 +6,8 @@ import sys
 import threading
 from pathlib import Path
 
+import pytest
+
 from clinic.store import Store
 from tests.conftest import FACILITY_ID
 
@@ -31,6 +33,7 @@ def _run_together(*arg_lists) -> list[tuple[str, str]]:
     return out
 
 
+@pytest.mark.slow
 def test_two_processes_creating_in_one_partition_lose_nothing(data_dir, store, pregnancy):
     results = _run_together(*[("create", data_dir, pregnancy["id"], 60, tag) for tag in ("a", "b")])
     ids = [i for out, _ in results for i in out.split()]
@@ -41,6 +44,7 @@ def test_two_processes_creating_in_one_partition_lose_nothing(data_dir, store, p
     assert len(Store(data_dir).entries(pregnancy["id"])) == 121
 
 
+@pytest.mark.slow
 def test_two_processes_amending_one_record_lose_no_amendment(data_dir, store, woman, pregnancy):
     t = store.create("typing", TYPING, by="u", facility=FACILITY_ID, pregnancy_id=pregnancy["id"]).record
     _run_together(*[("amend", data_dir, t["id"], 30, tag) for tag in ("a", "b")])

@@ -9,6 +9,8 @@ import sys
 import time
 from pathlib import Path
 
+import pytest
+
 from clinic.store import Store
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -31,6 +33,7 @@ def _kill_while_writing(data_dir, pregnancy_id, delay) -> list[str]:
     return [first.decode().strip()] + rest.decode().split()
 
 
+@pytest.mark.slow
 def test_sigkill_while_writing_loses_no_acknowledged_write(data_dir, store, pregnancy):
     rng = random.Random(20260316)
     acknowledged: list[str] = []

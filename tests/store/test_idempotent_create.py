@@ -25,7 +25,8 @@ def test_same_id_same_fields_returns_the_existing_record(store, pregnancy, now):
 
 def test_replay_after_an_amendment_still_matches_the_original(store, pregnancy, now):
     rid = str(uuid.uuid4())
-    store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=now)
+    store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid,
+                 now=now)
     store.amend(rid, {"lab": "District lab"}, by=USERNAME, reason="lab added", now=now)
     again = store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"],
                          record_id=rid, now=now)
@@ -34,7 +35,8 @@ def test_replay_after_an_amendment_still_matches_the_original(store, pregnancy, 
 
 def test_same_id_different_fields_is_a_conflict(store, pregnancy, now):
     rid = str(uuid.uuid4())
-    store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid, now=now)
+    store.create("typing", TYPING, by=USERNAME, facility=FACILITY_ID, pregnancy_id=pregnancy["id"], record_id=rid,
+                 now=now)
     with pytest.raises(Conflict) as e:
         store.create("typing", {**TYPING, "rhd": "positive"}, by=USERNAME, facility=FACILITY_ID,
                      pregnancy_id=pregnancy["id"], record_id=rid, now=now)

@@ -115,7 +115,8 @@ def test_canonical_values_are_recomputed_on_import(store):
             "given_at": "2026-03-01T07:00:00Z", "amount": 300, "unit": "ug", "route": "IM", "lot": "L",
             "lot_expiry": "2027-01-01", "indication": "sensitising-event", "given_by": "far", "dose_iu": 999}
     store.merge_foreign(dose)
-    assert store.get("far-dose-1")["dose_iu"] == 1500  # 300 µg x 5 (BSH 2014, Qureshi et al., Transfus Med 2014;24:8-20)
+    # 300 µg x 5 (BSH 2014, Qureshi et al., Transfus Med 2014;24:8-20)
+    assert store.get("far-dose-1")["dose_iu"] == 1500
 
 
 def test_later_local_now_does_not_matter(store, now):

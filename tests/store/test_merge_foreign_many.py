@@ -59,6 +59,7 @@ def _twin_stores(tmp_path, password_hash, rng, women=10):
     return stores, mixed_batch(rng, records)
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3, 4, 5, 6])
 def test_batch_equals_merge_foreign_record_by_record(tmp_path, password_hash, seed):
     rng = random.Random(seed)
@@ -188,6 +189,7 @@ def _audit_lines(store: Store, ids=None) -> Counter:
     return Counter(json.dumps(a, sort_keys=True) for a in store.audit() if ids is None or a["id"] in ids)
 
 
+@pytest.mark.slow
 def test_sigkill_during_a_bulk_import_leaves_each_record_whole_or_absent(tmp_path, password_hash):
     from tests.store.worker import NOW as WORKER_NOW
 
@@ -225,6 +227,7 @@ def test_sigkill_during_a_bulk_import_leaves_each_record_whole_or_absent(tmp_pat
         assert final.check(now=WORKER_NOW).ok
 
 
+@pytest.mark.slow
 @pytest.mark.parametrize("seed", [1, 2, 3])
 def test_batch_order_does_not_change_the_stored_records(tmp_path, password_hash, seed):
     rng = random.Random(seed)

@@ -20,7 +20,8 @@ def test_pregnancy_and_its_entries_live_in_the_booking_month_file(store, data_di
                  facility=FACILITY_ID, pregnancy_id=p["id"], now=now)
     jan = data_dir / "records" / FACILITY_ID / "2026-01.json"
     assert jan.exists()
-    assert sorted(f.name for f in (data_dir / "records" / FACILITY_ID).glob("*.json")) == ["2026-01.json", "2026-03.json"]
+    names = sorted(f.name for f in (data_dir / "records" / FACILITY_ID).glob("*.json"))
+    assert names == ["2026-01.json", "2026-03.json"]
     assert jan.read_text().count('"kind":"typing"') == 1
 
 

@@ -50,7 +50,9 @@ def test_amend_with_invalid_value_names_the_field(client, booked, store):
     form.update({"abo": "O", "rhd": "negative", "tested_on": "2999-01-01", "reason": "date typo"})
     r = client.post(f"/records/{rid}/amend", data=form)
     assert r.status_code == 422
-    assert re.search(r'data-error-for="tested_on"[^>]*>Date tested 2999-01-01 is in the future', r.get_data(as_text=True))
+    assert re.search(
+        r'data-error-for="tested_on"[^>]*>Date tested 2999-01-01 is in the future', r.get_data(as_text=True)
+    )
 
 
 def test_stale_amend_form_is_a_409_and_overwrites_nothing(client, booked, store):
@@ -80,8 +82,16 @@ def test_amend_woman_details(client, booked, store):
     html = client.get(f"/records/{wid}/amend").get_data(as_text=True)
     form = _amend_form(html)
     w = booked["woman"]
-    form.update({"name": w["name"], "birth_date": w["birth_date"], "phone": "0700 999 000",
-                 "register_no": w["register_no"], "village": w["village"], "reason": "new phone"})
+    form.update(
+        {
+            "name": w["name"],
+            "birth_date": w["birth_date"],
+            "phone": "0700 999 000",
+            "register_no": w["register_no"],
+            "village": w["village"],
+            "reason": "new phone",
+        }
+    )
     r = client.post(f"/records/{wid}/amend", data=form)
     assert r.status_code == 302
     assert r.headers["Location"] == f"/women/{wid}"

@@ -148,5 +148,6 @@ def test_patch_voided_true_voids_and_keeps_the_record(client, booked, store):
 
 
 def test_patch_unknown_record_is_404(client):
-    r = client.api("PATCH", "/api/v1/records/nope", json={"changes": {"abo": "A"}, "reason": "x", "expected_version": 1})
+    r = client.api("PATCH", "/api/v1/records/nope",
+                   json={"changes": {"abo": "A"}, "reason": "x", "expected_version": 1})
     assert r.status_code == 404

@@ -42,7 +42,8 @@ def make_pregnancy(live, name: str, weeks: int = 26) -> dict:
                                    "lmp": (today - timedelta(weeks=weeks)).isoformat(), "status": "ongoing",
                                    "gravidity": 2, "parity": 1},
                      by="midwife", facility=s.facility_id, woman_id=w["id"]).record
-    store.create("typing", {"abo": "A", "rhd": "negative", "tested_on": (today - timedelta(weeks=weeks - 12)).isoformat()},
+    tested_on = (today - timedelta(weeks=weeks - 12)).isoformat()
+    store.create("typing", {"abo": "A", "rhd": "negative", "tested_on": tested_on},
                  by="midwife", facility=s.facility_id, woman_id=w["id"], pregnancy_id=p["id"])
     return p
 
@@ -98,7 +99,8 @@ def test_sensitising_event_puts_the_72_hour_deadline_on_today_and_the_dose_close
     [event] = kinds_of(live, p["id"], "event")
 
     page.goto("/")
-    item = page.locator("ul.worklist li.item", has_text="Akinyi Testcase Event").filter(has_text="Anti-D after abdominal trauma")
+    item = page.locator("ul.worklist li.item", has_text="Akinyi Testcase Event").filter(
+        has_text="Anti-D after abdominal trauma")
     assert item.count() == 1
     deadline = item.locator(".deadline").inner_text()
     assert "Give anti-D before" in deadline
@@ -108,7 +110,8 @@ def test_sensitising_event_puts_the_72_hour_deadline_on_today_and_the_dose_close
 
     page.goto(f"/pregnancies/{p['id']}")
     # The event's dose item links with the proposed dose (dose_iu=...), the FMH item without.
-    page.locator(f'section.plan a[href*="covers={event["id"]}"]:not([href*="dose_iu=&"])', has_text="Record this dose").click()
+    page.locator(f'section.plan a[href*="covers={event["id"]}"]:not([href*="dose_iu=&"])',
+                 has_text="Record this dose").click()
     page.wait_for_url("**/add/dose**")
     if not page.input_value('[name="lot"]'):
         page.fill('[name="lot"]', "TESTLOT-7")
@@ -189,8 +192,8 @@ def test_an_entry_saved_offline_waits_on_the_phone_and_reaches_the_laptop_once(p
 def test_a_record_amended_on_the_laptop_meanwhile_is_a_conflict_not_overwritten(page, context, live):
     p = make_pregnancy(live, "Njeri Testcase Conflict")
     s = live.app.extensions["rhledger"]["settings"]
-    rec = live.store.create("screen", {"sampled_at": (datetime.now(s.tz) - timedelta(days=2)).strftime("%Y-%m-%dT%H:%M"),
-                                       "result": "negative", "lab": "First lab"},
+    sampled = (datetime.now(s.tz) - timedelta(days=2)).strftime("%Y-%m-%dT%H:%M")
+    rec = live.store.create("screen", {"sampled_at": sampled, "result": "negative", "lab": "First lab"},
                             by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"]).record
     sign_in(page, live)
     page.goto(f"/records/{rec['id']}/amend")
@@ -209,7 +212,8 @@ def test_a_record_amended_on_the_laptop_meanwhile_is_a_conflict_not_overwritten(
         # The amend page has no data-api form yet: queue the same request the form would make.
         page.evaluate("""rec => rhOutbox.add({key: rhOutbox.uuid(), method: "PATCH", url: "/api/v1/records/" + rec.id,
             body: {changes: {lab: "Lab typed on the phone"}, reason: "wrong lab name", expected_version: rec.version},
-            kind: "screen", label: "Amend antibody screen", record_id: rec.id, form_url: "/records/" + rec.id + "/amend",
+            kind: "screen", label: "Amend antibody screen", record_id: rec.id,
+            form_url: "/records/" + rec.id + "/amend",
             form_values: [["lab", "Lab typed on the phone"], ["reason", "wrong lab name"]]}, "waiting")""", rec)
     page.wait_for_selector('#outbox-count[data-waiting="1"]')
 
@@ -272,8 +276,8 @@ def test_refused_values_are_shown_by_their_fields_and_nothing_is_queued(page, li
 def test_an_amendment_made_online_is_saved_at_once(page, live):
     p = make_pregnancy(live, "Wambui Testcase Amend")
     s = live.app.extensions["rhledger"]["settings"]
-    rec = live.store.create("screen", {"sampled_at": (datetime.now(s.tz) - timedelta(days=1)).strftime("%Y-%m-%dT%H:%M"),
-                                       "result": "negative", "lab": "Old lab"},
+    sampled = (datetime.now(s.tz) - timedelta(days=1)).strftime("%Y-%m-%dT%H:%M")
+    rec = live.store.create("screen", {"sampled_at": sampled, "result": "negative", "lab": "Old lab"},
                             by="midwife", facility=s.facility_id, woman_id=p["woman_id"], pregnancy_id=p["id"]).record
     sign_in(page, live)
     page.goto(f"/records/{rec['id']}/amend")
@@ -318,7 +322,8 @@ def test_a_booking_made_offline_reaches_the_laptop_once(page, context, live):
     page.wait_for_selector('#outbox-count[data-count="0"]', timeout=30000)
     preg = live.store.get(body["pregnancy"]["id"])
     assert preg["woman_id"] == body["woman"]["id"]
-    assert [w["id"] for w in live.store.women_of() if w.get("name") == "Moraa Testcase Offlinebook"] == [body["woman"]["id"]]
+    same = [w["id"] for w in live.store.women_of() if w.get("name") == "Moraa Testcase Offlinebook"]
+    assert same == [body["woman"]["id"]]
     assert len(kinds_of(live, preg["id"], "typing")) == 1
 
 

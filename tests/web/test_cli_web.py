@@ -47,6 +47,7 @@ def test_serve_without_config_says_how_to_start(tmp_path, served):
     assert not served
 
 
+@pytest.mark.slow
 def test_demo_no_serve_writes_data_and_prints_sign_in(tmp_path, served):
     d = tmp_path / "demo"
     r = CliRunner().invoke(cli, ["demo", "--data", str(d), "--no-serve"])
@@ -72,6 +73,7 @@ def test_demo_unknown_site_lists_the_sites(tmp_path):
     assert "clinic-a" in r.output
 
 
+@pytest.mark.slow
 def test_demo_then_serve(tmp_path, served):
     r = CliRunner().invoke(cli, ["demo", "--data", str(tmp_path / "d"), "--port", "5999"])
     assert r.exit_code == 0, r.output

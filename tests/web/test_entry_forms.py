@@ -101,7 +101,9 @@ def test_number_inputs_carry_the_schema_range(client, booked):
     html = client.get(f"/pregnancies/{booked['pregnancy']['id']}/add/doppler").get_data(as_text=True)
     assert re.search(r'name="mca_psv_cm_s"[^>]*min="5"[^>]*max="150"', html)
     assert re.search(r'name="ga_days"[^>]*pattern=', html)
-    assert re.search(r'type="datetime-local" id="f-measured_at" name="measured_at" value="\d{4}-\d\d-\d\dT\d\d:\d\d"', html)
+    assert re.search(
+        r'type="datetime-local" id="f-measured_at" name="measured_at" value="\d{4}-\d\d-\d\dT\d\d:\d\d"', html
+    )
 
 
 def test_dose_form_defaults_to_the_stocked_product_and_the_proposed_dose(client, booked):
@@ -115,8 +117,13 @@ def test_dose_form_defaults_to_the_stocked_product_and_the_proposed_dose(client,
 
 def test_dose_form_links_the_event_it_covers(client, booked, store):
     pid = booked["pregnancy"]["id"]
-    ev = store.create("event", {"event_kind": "abdominal-trauma", "occurred_at": _local_hour_ago()},
-                      by="mwangi", facility="test-clinic", pregnancy_id=pid).record
+    ev = store.create(
+        "event",
+        {"event_kind": "abdominal-trauma", "occurred_at": _local_hour_ago()},
+        by="mwangi",
+        facility="test-clinic",
+        pregnancy_id=pid,
+    ).record
     html = client.get(f"/pregnancies/{pid}/add/dose?covers={ev['id']}").get_data(as_text=True)
     assert f'<option value="{ev["id"]}" selected>Event · abdominal-trauma' in html
 

@@ -18,7 +18,8 @@ def test_stock_page_shows_on_hand_by_lot(client, store):
     _move(store, "cold-chain-break", 2, hours=7)
     _move(store, "received", 3, lot="LOT-OLD", expiry="2020-01-01", hours=6)
     html = client.get("/stock").get_data(as_text=True)
-    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td><strong>LOT-A</strong><br><small>Anti-D 1500 \(1500 IU\)</small></td>.*?</tr>",
+    row = re.search(r"(?s)<tr class=\"[^\"]*\">\s*<td><strong>LOT-A</strong>"
+                    r"<br><small>Anti-D 1500 \(1500 IU\)</small></td>.*?</tr>",
                     html).group(0)
     assert "<td>7</td><td>10500</td>" in row
     assert re.search(r'(?s)<tr class="expired">.*?LOT-OLD.*?expired', html)
@@ -38,7 +39,8 @@ def test_stock_form_error_names_the_field_and_range(client, store):
                                     "vial_iu": "20", "lot": "X", "lot_expiry": "2031-01-01", "vials": "0"})
     assert r.status_code == 422
     html = r.get_data(as_text=True)
-    assert re.search(r'data-error-for="vial_iu"[^>]*>Vial size \(IU\) 20 is outside the allowed range 50 to 15000', html)
+    assert re.search(r'data-error-for="vial_iu"[^>]*>'
+                     r'Vial size \(IU\) 20 is outside the allowed range 50 to 15000', html)
     assert re.search(r'data-error-for="vials"[^>]*>Vials', html)
     assert not list(store.iter_records(kind="stock"))
 

@@ -116,10 +116,12 @@ def test_a_woman_brought_on_her_card_is_on_today_and_bundle_copies_are_not(clien
                      facility="other-clinic", pregnancy_id=p["id"], origin=origin)
         return p
 
-    card = _woman_with_event("Carded Mover", {"via": "card", "facility": "other-clinic",
-                                              "issue": "2026-01-01T00:00:00Z"})
-    bundle = _woman_with_event("Bundled Copy", {"via": "bundle", "facility": "other-clinic",
-                                                "issue": "2026-01-01T00:00:00Z"})
+    card = _woman_with_event(
+        "Carded Mover", {"via": "card", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"}
+    )
+    bundle = _woman_with_event(
+        "Bundled Copy", {"via": "bundle", "facility": "other-clinic", "issue": "2026-01-01T00:00:00Z"}
+    )
     ids = {i["pregnancy_id"] for i in client.get("/api/v1/worklist").get_json()["items"]}
     assert card["id"] in ids and bundle["id"] not in ids
 
