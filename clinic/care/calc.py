@@ -10,6 +10,7 @@ from dataclasses import asdict, dataclass, field
 
 from clinic.care.errors import CareInputError, require_range
 from clinic.care.formatting import format_against, round_against, threshold_text
+from clinic.records.choices import event_words
 from clinic.records.schema import EVENT_KINDS, IU_PER_UG
 from clinic.records.values import format_ga
 
@@ -323,6 +324,9 @@ class EventDose:
     repeat_every_days: int | None = None
     repeat_dose_iu: int | None = None
     notes: list[str] = field(default_factory=list)
+    # For a conditional event (band conditional_kinds): True when the bleeding is heavy, repeated
+    # or with abdominal pain, False when recorded as none of them, None when not (all) recorded.
+    condition_met: bool | None = None
 
     @property
     def dose_ug(self) -> float | None:
@@ -334,8 +338,41 @@ class EventDose:
         return d
 
 
-def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = False) -> EventDose:
-    """Anti-D for one sensitising event, by GA band and kind (profile ``events.bands``)."""
+# The facts that make a conditional event (bleeding early in pregnancy) need anti-D, in the
+# words of BSH 2014 (Qureshi et al.): "repeated, heavy or associated with abdominal pain".
+BLEEDING_FACTS = (("bleeding_heavy", "heavy"), ("bleeding_repeated", "repeated"),
+                  ("abdominal_pain", "with abdominal pain"))
+BLEEDING_CONDITION = "heavy, repeated or with abdominal pain"
+
+
+def bleeding_condition(facts: dict) -> bool | None:
+    """True when any of the facts is true, False when all are recorded false, else None."""
+    values = [facts.get(name) for name, _ in BLEEDING_FACTS]
+    if any(v is True for v in values):
+        return True
+    if all(v is False for v in values):
+        return False
+    return None
+
+
+def bleeding_words(facts: dict) -> str:
+    """The recorded facts in words: "heavy, with abdominal pain"; "" when none is true."""
+    return ", ".join(words for name, words in BLEEDING_FACTS if facts.get(name) is True)
+
+
+def unrecorded_bleeding_facts(facts: dict) -> list[str]:
+    """The facts not recorded (neither yes nor no), in words."""
+    return [words for name, words in BLEEDING_FACTS if facts.get(name) is None]
+
+
+def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = False,
+               bleeding_heavy: bool | None = None, bleeding_repeated: bool | None = None,
+               abdominal_pain: bool | None = None) -> EventDose:
+    """Anti-D for one sensitising event, by GA band and kind (profile ``events.bands``).
+
+    A kind the band lists in ``conditional_kinds`` (bleeding early in pregnancy) needs anti-D
+    only when the bleeding is heavy, repeated or with abdominal pain: given as the three facts
+    (None = not recorded). With none of them recorded the dose is proposed on that condition."""
     if kind not in EVENT_KINDS:
         raise CareInputError("kind", f"{kind!r} is not one of: {', '.join(EVENT_KINDS)}")
     ga = require_range("ga_days", ga_days, 0, 44 * 7, unit="days")
@@ -348,16 +385,28 @@ def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = Fals
     hours, late = ev["deadline_hours"], ev["late_window_days"]
     fmh = ga >= profile.ga("events.fmh_test_from_ga") and band.covers(band.fmh_test_kinds, kind)
     band_text = f"{format_ga(band.from_ga_days)} to {format_ga(band.to_ga_days)}"
+    before = f"before {format_ga(band.to_ga_days + 1)}"
+    what = f"{event_words(kind)} at {format_ga(ga)}"
     if band.covers(band.not_needed_kinds, kind):
-        return EventDose(False, None, False, hours, late,
-                         f"{kind} at {format_ga(ga)}: the profile forgoes anti-D for this event in {band_text}", src)
+        reason = f"{what}: the profile forgoes anti-D for this event in {band_text}"
+        if ev["forgone_shared_decision"]:
+            reason += "; it may still be offered after a shared decision with the woman"
+        return EventDose(False, None, False, hours, late, reason, src)
     conditional = kind in band.conditional_kinds
     if not conditional and not band.covers(band.kinds, kind):
         return EventDose(False, None, False, hours, late,
-                         f"{kind} at {format_ga(ga)}: not among the events needing anti-D in {band_text} "
+                         f"{what}: not among the events needing anti-D in {band_text} "
                          f"(listed: {', '.join(band.kinds)}"
-                         + (f"; {', '.join(band.conditional_kinds)} only if repeated, heavy or with abdominal pain"
+                         + (f"; {', '.join(band.conditional_kinds)} only if {BLEEDING_CONDITION}"
                             if band.conditional_kinds else "") + ")", src)
+    facts = {"bleeding_heavy": bleeding_heavy, "bleeding_repeated": bleeding_repeated,
+             "abdominal_pain": abdominal_pain}
+    met = bleeding_condition(facts) if conditional else None
+    if conditional and met is False:
+        return EventDose(False, None, False, hours, late,
+                         f"{what}, bleeding neither heavy nor repeated and without abdominal pain: anti-D not "
+                         f"needed {before} (only for bleeding that is {BLEEDING_CONDITION})", src,
+                         conditional=True, condition_met=False)
     dose = band.dose_iu
     notes = []
     if band.reduced_dose_if_stocked:
@@ -372,14 +421,16 @@ def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = Fals
         rep = ev["repeat_every_days"]
         notes.append(f"ongoing bleeding: repeat at least {ev['repeat_dose_iu']} IU every "
                      f"{rep // 7} weeks, with an FMH test")
-    reason = f"{kind} at {format_ga(ga)}: {dose} IU ({iu_to_ug(dose):g} µg) within {hours:g} hours"
-    if conditional:
-        reason += (" if the bleeding is repeated, heavy or with abdominal pain; "
-                   "otherwise not needed before 12 weeks")
+    reason = f"{what}: {dose} IU ({iu_to_ug(dose):g} µg) within {hours:g} hours"
+    if met:
+        reason = (f"{what}, bleeding {bleeding_words(facts)}: {dose} IU ({iu_to_ug(dose):g} µg) within "
+                  f"{hours:g} hours ({before} anti-D is for bleeding that is {BLEEDING_CONDITION})")
+    elif conditional:
+        reason += f" if the bleeding is {BLEEDING_CONDITION}; otherwise not needed {before}"
     if fmh:
         reason += "; take an FMH test sample (before the dose where possible) to check whether more is needed"
     return EventDose(True, dose, fmh, hours, late, reason, src, conditional, rep,
-                     ev["repeat_dose_iu"] if rep else None, notes)
+                     ev["repeat_dose_iu"] if rep else None, notes, met)
 
 
 # ---- fetal weight and intrauterine transfusion volume -----------------------------------

@@ -216,6 +216,10 @@ class AlertCode:
     MCA_PSV: Final = "mca-psv"
     FETAL_HB: Final = "fetal-hb"
     NEONATAL_FOLLOW_UP: Final = "neonatal-follow-up"
+    # what an earlier pregnancy hands on (plan_pregnancy's earlier=)
+    EARLIER_DOSE_MISSED: Final = "earlier-dose-missed"        # record_ids: the earlier pregnancy, this one's screen
+    EARLIER_ANTIBODY: Final = "earlier-antibody"
+    EARLIER_PREGNANCY_UNREADABLE: Final = "earlier-pregnancy-unreadable"
     # not the engine's: the Today page, when a pregnancy's plan cannot be worked out
     PLAN_FAILED: Final = "plan-failed"
 

@@ -38,13 +38,14 @@ SPEC: dict[str, Any] = {
     "pre_dose_screen.source": "str", "pre_dose_screen.required": "bool", "pre_dose_screen.opens_ga": "ga",
     "routine.source": "str", "routine.regimen": "str", "routine.targeted_prophylaxis": "bool",
     "routine.partner_negative_may_decline": "bool", "routine.partner_negative_skips_routine": "bool",
+    "routine.targeted_shared_decision": "bool",
     "partner_typing.source": "str", "partner_typing.offered": "bool", "partner_typing.closes_ga": "ga",
     "fetal_rhd.source": "str", "fetal_rhd.opens_ga": "ga", "fetal_rhd.closes_ga": "ga",
     "fetal_rhd.late_until_ga": "ga",
     "events.source": "str", "events.deadline_hours": "hours", "events.late_window_days": "days",
     "events.after_routine_dose_needs_own_dose": "bool", "events.repeat_for_ongoing_bleeding": "bool",
     "events.repeat_from_ga": "ga", "events.repeat_every_days": "days", "events.repeat_dose_iu": "dose",
-    "events.fmh_test_from_ga": "ga", "events.bands": [_BAND],
+    "events.fmh_test_from_ga": "ga", "events.forgone_shared_decision": "bool", "events.bands": [_BAND],
     "postpartum.source": "str", "postpartum.dose_iu": "dose", "postpartum.deadline_hours": "hours",
     "postpartum.late_window_days": "days", "postpartum.fmh_test_required": "bool",
     "fmh.source": "str", "fmh.rule": ("vials-per-30ml", "iu-per-ml"),
@@ -65,6 +66,7 @@ SPEC: dict[str, Any] = {
     "surveillance.hb_mom_moderate": "pos", "surveillance.hb_mom_severe": "pos",
     "surveillance.delivery_text": "str",
     "decisions.source": "str",
+    "missed_dose.source": "str", "missed_dose.follow_up_screen_after_days": "days",
 }
 # The decisions table names every plan item (codes.ITEMS): the items whose choice it informs
 # (``serves``), whether it exists only for that choice (``only``) and that choice in words.

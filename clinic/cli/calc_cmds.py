@@ -240,19 +240,23 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
 @click.option("--kind", required=True, type=click.Choice(EVENT_KINDS), help="The sensitising event.")
 @click.option("--ga", required=True, help="GA at the event, 10+0 or decimal weeks.")
 @click.option("--ongoing", is_flag=True, help="Bleeding continues (intermittent).")
+@click.option("--heavy/--not-heavy", default=None, help="The bleeding is heavy (or not); left out: not known.")
+@click.option("--repeated/--not-repeated", default=None, help="The bleeding is repeated (or not).")
+@click.option("--pain/--no-pain", default=None, help="With abdominal pain (or without).")
 @click.option("--stocked-vial-iu", type=int, multiple=True,
               help="Vial sizes stocked, IU (repeatable; default: the facility's products).")
 @profile_option
 @data_option
 @json_option
 @clean_errors(*ERRORS)
-def event_dose_cmd(kind, ga, ongoing, stocked_vial_iu, profile_id, data, as_json):
+def event_dose_cmd(kind, ga, ongoing, heavy, repeated, pain, stocked_vial_iu, profile_id, data, as_json):
     """Anti-D for a sensitising event: dose, deadline, FMH test."""
     prof = _profile(profile_id, data)
     s = _settings(data)
     products = tuple(Product(f"{v} IU vial", v) for v in stocked_vial_iu) or (s.products if s else ())
     days = _ga(ga)
-    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing)
+    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing, bleeding_heavy=heavy,
+                        bleeding_repeated=repeated, abdominal_pain=pain)
     obj = r.to_dict()
     obj.update({"kind": kind, "ga_days": days, "ga": format_ga(days), "profile": prof.id,
                 "profile_version": prof.version, "caution": prof.caution})

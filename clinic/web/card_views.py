@@ -33,7 +33,7 @@ def _plan(reading):
     if c is None:
         return None
     try:
-        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow())
+        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow(), store=get_store())
     except Exception as e:  # noqa: BLE001 - a plan that cannot be made must not hide the reading
         return {"error": f"the care engine could not plan from this card ({type(e).__name__}: {e})", "items": []}
 

@@ -377,6 +377,8 @@ def _changed(f, old, new) -> bool:
     if f.type == "ga":
         return ga_text(old) != str(new).strip() if old is not None else True
     if f.type == "bool":
+        if old is None and f.unticked_is_no:
+            return True  # a question the record never answered: the form's answer (even "no") is new
         return bool(old) != (str(new).lower() in ("yes", "true", "on", "1"))
     if f.type == "choices":
         return list(old or []) != list(new)

@@ -30,7 +30,9 @@ def histories(draw):
         entries.append(dose(_t(d), draw(st.sampled_from([500, 1500])), lot=draw(st.sampled_from(["A", "B"]))))
     for _ in range(draw(st.integers(0, 3))):
         d = draw(st.floats(6 * 7, 39 * 7))
-        e = event(_t(d), draw(st.sampled_from(EVENT_KINDS)), ongoing=draw(st.booleans()))
+        facts = draw(st.fixed_dictionaries({}, optional={k: st.booleans() for k in (
+            "bleeding_heavy", "bleeding_repeated", "abdominal_pain")}))
+        e = event(_t(d), draw(st.sampled_from(EVENT_KINDS)), ongoing=draw(st.booleans()), **facts)
         entries.append(e)
         if draw(st.booleans()):
             entries.append(rec("fmh", method="kleihauer-betke", sampled_at=_t(d + 0.05), covers_id=e["id"],

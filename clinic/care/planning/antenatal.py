@@ -216,12 +216,14 @@ def routine_doses(pl: Planner) -> None:
             it.state, it.reason = "not-needed", stop
         elif fetal_neg:
             it.state, it.reason = "not-needed", "cell-free fetal RHD negative: routine antenatal anti-D not needed"
+            if p.get("routine.targeted_shared_decision"):
+                it.reason += "; it may still be offered after a shared decision with her"
             it.related_id = pl.fetal["cffdna_id"]
         elif pl.partner_negative and p.get("routine.partner_negative_skips_routine"):
             it.state = "not-needed"
             it.reason = ("the baby's father is RhD negative and paternity is certain: routine antenatal anti-D "
-                         "not needed (profile setting routine.partner_negative_skips_routine); give it if she "
-                         "chooses to have it")
+                         "not needed (profile setting routine.partner_negative_skips_routine); it may still be "
+                         "offered after a shared decision with her: give it if she chooses to have it")
             it.related_id = pl.partner_id
         elif pl.born_at and pl.born_at < opens:
             it.state, it.reason = "not-needed", "born before this dose was due"
@@ -235,6 +237,10 @@ def routine_doses(pl: Planner) -> None:
                          "overdue": "the on-time window has closed: give it now, a late dose is still worth giving "
                                     f"(until {format_ga(r.late_until_ga_days)})",
                          "missed": "not given in the window, and the late window has passed"}[it.state]
+        if pl.partner_negative and it.state in OPEN_STATES:
+            # Her informed choice (the profile lets her decline): the reason says so beside the dose.
+            it.reason += ("; the baby's father is RhD negative and paternity is certain: after a shared "
+                          "decision she may choose to decline it")
         if pl.rhd["managed_as"] in ("untyped", "retest") and it.state in OPEN_STATES:
             it.reason += "; only if RhD negative (typing not yet known)"
     if p.get("pre_dose_screen.required") and first is not None:

@@ -15,7 +15,7 @@ from typing import Any, Iterable, TypedDict
 from clinic.care import codes
 from clinic.care.dating import Dating
 from clinic.care.errors import CareInputError
-from clinic.care.model import Alert, CareContext, PlanItem
+from clinic.care.model import Alert, CareContext, EarlierPregnancy, MissedDose, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
 from clinic.records.values import parse_utc
@@ -204,6 +204,9 @@ class Planner:
     unassigned: list[Dose] = field(default_factory=list)
     # Assignment key -> the IU an FMH result asks for in all (more than the standard dose).
     fmh_need: dict[str, int] = field(default_factory=dict)
+    # The woman's earlier pregnancies (plan_pregnancy's ``earlier=``) and this one's missed doses.
+    earlier: tuple[EarlierPregnancy, ...] = ()
+    missed: list[MissedDose] = field(default_factory=list)
     births: list[Record] = field(init=False)
     birth: Record | None = field(init=False)
     born_at: datetime | None = field(init=False)
