@@ -65,13 +65,18 @@ def test_facts_not_recorded_ask_the_clinician():
     assert "heavy / repeated / with abdominal pain" in a.message and "250 IU within 72 h" in a.message
 
 
-def test_a_stored_event_with_only_bleeding_continues_is_read_as_that_and_asks():
-    # Records made before the three facts existed used "bleeding continues" for them: it is read
-    # as what it says, and the early-bleeding alert asks the clinician for the facts.
+def test_a_stored_event_with_only_bleeding_continues_keeps_its_dose_and_asks():
+    # Records made before the three facts existed used "bleeding continues" for them. Continuing
+    # bleeding with heavy / repeated / pain unknown may be any of them (BSH 2014 key recs: anti-D for
+    # bleeding that is repeated, heavy or with abdominal pain), so the dose those records were planned
+    # with stays due — never silently dropped — and the early-bleeding alert asks for the facts
+    # (common practice: when in doubt anti-D is given, the safer error).
     plan = _plan(kind="antepartum-haemorrhage", ongoing=True)
-    assert item(plan, "event-dose").state == "not-needed"
+    it = item(plan, "event-dose")
+    assert it.state == "due" and it.dose_iu == 250  # BSH 2014 key recs: minimum 250 IU before 12 weeks
+    assert "not recorded" in it.reason and "stays due" in it.reason
     (a,) = plan.alerts_with("early-bleeding-check")
-    assert "recorded as continuing" in a.message and "does not say whether" in a.message
+    assert "bleeding continues" in a.message and "does not say whether" in a.message
 
 
 def test_continuing_bleeding_with_none_of_the_three_is_reviewed():
@@ -147,3 +152,10 @@ def plan_ga(plan, e):
     if e.get("ga_days") is not None:
         return int(e["ga_days"])
     return 280 - (plan.dating["edd"] - parse_utc(e["occurred_at"]).date()).days
+
+
+def test_a_single_bleed_with_the_facts_unrecorded_is_not_given_but_asked_about():
+    plan = _plan(kind="antepartum-haemorrhage")
+    it = item(plan, "event-dose")
+    assert it.state == "not-needed"                                # BSH 2014: a single bleed needs the facts first
+    assert "early-bleeding-check" in alert_codes(plan)

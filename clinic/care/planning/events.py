@@ -84,7 +84,7 @@ def _event(pl: Planner, e: Record) -> None:
         if ed.conditional and e.get("ongoing"):
             _early_bleeding_alert(pl, e, words, ga, ed, "bleeding is recorded as continuing: review her; if it "
                                   f"becomes {calc.BLEEDING_CONDITION}, amend the event and")
-    elif ed.conditional and ed.condition_met is None:
+    elif ed.conditional and ed.condition_met is None and not e.get("ongoing"):
         it.state, it.dose_iu = "not-needed", None
         missing = calc.unrecorded_bleeding_facts(e)
         it.reason = (f"{words} at {format_ga(ga)}: whether the bleeding is {' / '.join(missing)} is not recorded; "
@@ -94,6 +94,14 @@ def _event(pl: Planner, e: Record) -> None:
         _early_bleeding_alert(pl, e, words, ga, ed, f"the record does not say whether the bleeding is "
                               f"{' / '.join(missing)}.{cont} A clinician asks and amends the event; if any,")
     else:
+        if ed.conditional and ed.condition_met is None:
+            # Bleeding that continues, with heavy / repeated / pain not recorded (entries made before
+            # those facts were asked read this way): when in doubt the dose stays due, never dropped.
+            missing = calc.unrecorded_bleeding_facts(e)
+            it.reason += (f"; bleeding continues and whether it is {' / '.join(missing)} is not recorded: "
+                          f"the dose stays due until the event says otherwise")
+            _early_bleeding_alert(pl, e, words, ga, ed, f"bleeding continues and the record does not say "
+                                  f"whether it is {' / '.join(missing)}; a clinician asks and amends the event;")
         it.state = window_state(pl.now, t, closes, late_until)
         if it.state == "overdue":
             it.reason = (f"the {ev['deadline_hours']:g}-hour deadline passed at {fmt(closes, tz)}: give "
