@@ -14,6 +14,7 @@ own) and writes every facility's signed bundle to ``<data_dir>/demo-bundles/``.
 """
 from __future__ import annotations
 
+import json
 import math
 import shutil
 import tempfile
@@ -345,18 +346,16 @@ def _toml_value(v: Any) -> str:
     return f'"{s}"'
 
 
-# The demo passwords are published (README, the demo command prints them), so their hashes
-# protect nothing: a cheap PBKDF2 keeps building a demo quick. Real accounts get werkzeug's
-# default (scrypt) from the commands that make them.
+# The demo passwords are published (README, the demo command prints them, the sign-in page
+# shows them), so their hashes protect nothing: a cheap PBKDF2 keeps building a demo quick,
+# and the first sign-in re-hashes it as Argon2id like any older hash.
 DEMO_HASH_METHOD = "pbkdf2:sha256:20000"
 # First line of every demo config.toml: `build_site(force=True)` deletes only folders marked so.
 DEMO_MARKER = "# Demo installation of the invented Selvara district (seed_demo). Not a real facility."
 
 
 def config_text(s: Site) -> str:
-    """config.toml of a demo site, with werkzeug password hashes of the demo passwords."""
-    from werkzeug.security import generate_password_hash
-
+    """config.toml of a demo site (its accounts are written by ``_write_accounts``)."""
     lines = [
         DEMO_MARKER,
         "[facility]",
@@ -386,13 +385,28 @@ def config_text(s: Site) -> str:
             lines.append(f"  {{ name = {_toml_value(name)}, vial_iu = {vial}, routes = {_toml_value(list(routes))} }},")
         lines.append("]")
         lines.append("")
-    lines += ["[backup]", "keep = 14", ""]
-    for a in s.staff:
-        lines += ["[[accounts]]", f"username = {_toml_value(a.username)}",
-                  f"display_name = {_toml_value(a.display_name)}", f"role = {_toml_value(a.role)}",
-                  f"# demo password: {a.password}",
-                  f"password_hash = {_toml_value(generate_password_hash(a.password, method=DEMO_HASH_METHOD))}", ""]
+    lines += ["[backup]", "keep = 14", "",
+              "# The demo sign-ins are in users.json (demo accounts: they sign in only beside the DEMO file).", ""]
     return "\n".join(lines)
+
+
+def _write_accounts(data_dir: Path, s: Site, clock: Clock) -> None:
+    """users.json with the site's demo accounts, and the DEMO marker that lets them sign in.
+
+    The marker holds the published sign-ins, so the sign-in page can show them."""
+    from werkzeug.security import generate_password_hash
+
+    from clinic.accounts.users import DEMO_MARKER as DEMO_FILE
+    from clinic.accounts.users import UserStore
+
+    marker = {"text": f"{s.name} of the invented {DISTRICT_NAME}: invented people and places only.",
+              "accounts": [[a.username, a.password, a.role] for a in s.staff]}
+    (data_dir / DEMO_FILE).write_text(json.dumps(marker, ensure_ascii=False, indent=1) + "\n", encoding="utf-8")
+    users = UserStore(data_dir)
+    for a in s.staff:
+        # Re-made as Argon2id at the first sign-in (users.UserStore.authenticate).
+        users.add(a.username, a.role, display_name=a.display_name, by="seed_demo", now=clock.now.timestamp(),
+                  demo=True, password_hash=generate_password_hash(a.password, method=DEMO_HASH_METHOD))
 
 
 # ---- keys and trust -----------------------------------------------------------------------
@@ -566,6 +580,7 @@ def build_site(data_dir, site: str = "clinic-a", now: datetime | None = None, fo
     clock = Clock(_aware_now(now), ZoneInfo(TIMEZONE))
     _prepare_dir(data_dir, force)
     _write_config(data_dir, s)
+    _write_accounts(data_dir, s, clock)
     fingerprint = _install_keys(data_dir, s, clock)
     summary: dict[str, Any] = {
         "site": s.key, "facility_id": s.facility_id, "facility_name": s.name, "kind": s.kind,

@@ -371,6 +371,15 @@ STORIES: tuple[Story, ...] = (
           ("40+1", last_month(3, 3)), tuple(_neg_booking() + _routine("28+4") + birth(last_month(3, 3))),
           Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Kivuli Ridge", age=36,
           gravidity=5, parity=4),
+    Story("a-screen-positive", "Nasra Wekesa-Lund", "clinic-a", PROPH,
+          "THE UNANSWERED SCREEN: booked late at 20+1, RhD negative, antibody screen positive but no "
+          "antibody identified yet: an identification task (a week) and an alert for a clinician; "
+          "routine anti-D is still planned",
+          ("20+4", ago()), (booking_typing(ago(days=3, hours=1), "negative"),
+                            screen(ago(days=3), "positive", label="booking-screen")),
+          Expect(PROPH, "negative", items={"antibody-identification": ("due",), "routine-dose": ("not-yet-due",)},
+                 closes_ahead=("antibody-identification",), alerts=("antibody-unidentified",)),
+          booked="20+1", village="Sokoro", age=29, gravidity=3, parity=2),
 
     Story("a-earlier-missed", "Beatrice Wanjala-Roos", "clinic-a", PROPH,
           "A MISSED DOSE TRAVELS WITH HER: two years ago her baby was RhD positive and no anti-D was given "
@@ -585,6 +594,15 @@ STORIES: tuple[Story, ...] = (
           Expect(PROPH, "negative", items={"event-dose": ("done",), "event-fmh-dose": ("due",)},
                  closes_ahead=("event-fmh-dose",), alerts=("fmh-large",), doses={"event-fmh-dose": 2000}),
           village="Selvara Town", age=27),
+    Story("h-pp-large-fmh", "Rehema Lindahl", "hospital", PROPH,
+          "THE FMH TOTAL: born 20 hours ago, baby RhD positive, Kleihauer 1 % (25 mL fetal red cells): "
+          "3125 IU in all, so the standard 500 IU plus 2625 IU more, not 3125 more",
+          ("39+6", ago(hours=20)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=20)) + [
+              kleihauer(after("birth", hours=2), 1.0, covers="birth")]),
+          Expect(PROPH, "negative", items={"postpartum-dose": ("due",), "postpartum-fmh-dose": ("due",)},
+                 closes_ahead=("postpartum-fmh-dose",), alerts=("fmh-large",),
+                 doses={"postpartum-dose": 500, "postpartum-fmh-dose": 2625}),
+          village="Selvara Town", age=31, gravidity=3, parity=2),
     Story("h-pp-done", "Margit Chepngeno", "hospital", PROPH,
           "Born at the hospital 40 hours ago; postpartum 500 IU given 10 hours after birth: done",
           ("39+3", ago(hours=40)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=40)) + [

@@ -69,6 +69,7 @@ CARD_FIELDS: dict[str, tuple[str, ...]] = {
 }
 OMITTED_FIELDS = {
     ("woman", "address"): "directions to her home are not needed elsewhere and are long",
+    ("dose", "override_reason"): "the clinician's reason stays in the facility's record; the card carries the dose",
 }
 
 # Choice values in code order (frozen; a value not listed travels as text).

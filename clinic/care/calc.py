@@ -9,6 +9,7 @@ import math
 from dataclasses import asdict, dataclass, field
 
 from clinic.care.errors import CareInputError, require_range
+from clinic.care.formatting import format_against, round_against, threshold_text
 from clinic.records.choices import event_words
 from clinic.records.schema import EVENT_KINDS, IU_PER_UG
 from clinic.records.values import format_ga
@@ -29,6 +30,11 @@ def ug_to_iu(ug: float) -> float:
 def _num(x: float) -> float:
     """Round a displayed figure to 4 significant decimals, keeping it a number."""
     return float(round(x, 4))
+
+
+def _num_against(x: float, thresholds: tuple[float, ...]) -> float:
+    """As ``_num``, with more decimals where 4 would put the figure on or across a threshold."""
+    return float(round_against(x, thresholds, 4))
 
 
 # ---- MCA peak systolic velocity (Mari et al., NEJM 2000;342:9-14) -------------------------
@@ -73,8 +79,10 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
     sev = mca_severity(mom, profile)
     s = profile.get("surveillance")
     refer = mom >= s["mca_refer_mom"] - _EPS
+    cuts = (s["mca_mom_mild"], s["mca_mom_moderate"], s["mca_mom_severe"], s["mca_refer_mom"])
+    text = format_against(mom, cuts)
     if refer:
-        step = (f"MCA-PSV {mom:.2f} MoM is at or above {s['mca_refer_mom']:.2f} MoM: suggest referral for "
+        step = (f"MCA-PSV {text} MoM is at or above {threshold_text(s['mca_refer_mom'])} MoM: suggest referral for "
                 f"fetal blood sampling and possible intrauterine transfusion (for a specialist to decide)")
     elif sev == "mild":
         step = "MCA-PSV in the mild range: suggest repeating the Doppler within 1 week (for a specialist to decide)"
@@ -83,7 +91,7 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
                 "(for a specialist to decide)")
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "psv_cm_s": _num(float(psv_cm_s)),
-        "median_cm_s": _num(med), "mom": _num(mom), "severity": sev,
+        "median_cm_s": _num(med), "mom": _num_against(mom, cuts), "mom_text": text, "severity": sev,
         "threshold_mild_cm_s": _num(med * s["mca_mom_mild"]),
         "threshold_moderate_cm_s": _num(med * s["mca_mom_moderate"]),
         "threshold_severe_cm_s": _num(med * s["mca_mom_severe"]),
@@ -139,9 +147,12 @@ def fetal_hb_severity(mom: float, profile) -> str:
 def fetal_hb_result(hb_g_dl, ga_days, profile) -> dict:
     med = fetal_hb_median(ga_days)
     mom = fetal_hb_mom(hb_g_dl, ga_days)
+    s = profile.get("surveillance")
+    cuts = (s["hb_mom_mild"], s["hb_mom_moderate"], s["hb_mom_severe"])
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "hb_g_dl": _num(float(hb_g_dl)),
-        "median_g_dl": _num(med), "mom": _num(mom), "severity": fetal_hb_severity(mom, profile),
+        "median_g_dl": _num(med), "mom": _num_against(mom, cuts), "mom_text": format_against(mom, cuts),
+        "severity": fetal_hb_severity(mom, profile),
         "source": "Mari G et al., NEJM 2000;342:9-14, reference median fetal Hb by week of gestation; "
                   "thresholds 0.84/0.65/0.55 MoM from profile " + profile.id,
     }
@@ -205,7 +216,10 @@ def fmh_dose_iu(whole_blood_ml: float, red_cells_ml: float, profile, route: str 
         n = whole_blood_ml / per
         vials = int(math.floor(n + 0.5 + _EPS)) + 1
         dose = max(fm["min_dose_iu"], vials * fm["vial_dose_iu"])
-        how = (f"{whole_blood_ml:.1f} mL / {per:g} mL per {fm['vial_dose_iu'] // 5} µg = {n:.2f}; round "
+        # the rounding boundary is the half vial: 0.4999 must not read "0.50" and then round down
+        half = math.floor(n + _EPS) + 0.5
+        how = (f"{format_against(whole_blood_ml, half * per, 1, note=False)} mL / {per:g} mL per "
+               f"{fm['vial_dose_iu'] // 5} µg = {format_against(n, half)}; round "
                f"(.5 up) and add one: {vials} x {fm['vial_dose_iu'] // 5} µg")
         return int(dose), how
     rate = fm["iu_per_ml_red_cells_im"] if route == "IM" else fm["iu_per_ml_red_cells_iv"]

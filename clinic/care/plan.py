@@ -5,9 +5,10 @@ The engine reads stored record dicts (schema.py), skips voided ones and ones dat
 matters, and derives every item from the profile. Nothing here stores anything.
 
 This module runs the rule sections in order; each lives in ``clinic.care.planning``:
-``core`` (history and planner state), ``rhd``, ``antibodies``, ``doses``, ``antenatal``,
-``events``, ``fmh``, ``birth``, ``carried`` (missed doses and what earlier pregnancies hand on)
-and ``clinic.care.surveillance``.
+``core`` (history and planner state), ``rhd``, ``antibodies``, ``identification``, ``doses``,
+``antenatal``, ``events``, ``fmh``, ``birth``, ``clinic.care.surveillance``, ``decisions``
+(tasks whose choice is gone close as no longer needed) and ``carried`` (missed doses and what
+earlier pregnancies hand on).
 """
 from __future__ import annotations
 
@@ -18,7 +19,7 @@ from typing import Any
 from clinic.care.dating import Dating, choose_dating, profile_thresholds
 from clinic.care.errors import CareInputError
 from clinic.care.model import Alert, CareContext, EarlierPregnancy, Plan
-from clinic.care.planning import antenatal, birth, carried, doses, events, fmh, rhd
+from clinic.care.planning import antenatal, birth, carried, decisions, doses, events, fmh, identification, rhd
 from clinic.care.planning.antibodies import judge_antibodies
 from clinic.care.planning.core import History, Planner
 from clinic.care.protocol import Profile
@@ -72,6 +73,7 @@ def _run(pl: Planner) -> Plan:
     carried.earlier_alerts(pl)
     doses.assign_doses(pl)
     antenatal.booking(pl)
+    identification.antibody_items(pl)
     antenatal.partner_typing(pl)
     antenatal.fetal_rhd_test(pl)
     if pl.prophylaxis:
@@ -84,6 +86,7 @@ def _run(pl: Planner) -> Plan:
     if pl.ab.surveillance:
         surveillance_items(pl)
     doses.dose_alerts(pl)
+    decisions.close_spent(pl)
     carried.missed_doses(pl)
     for it in pl.items:
         if it.state == "not-needed":

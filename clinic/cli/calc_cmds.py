@@ -164,7 +164,7 @@ def mom_cmd(psv, ga, profile_id, data, as_json):
     r = calc.mca_result(psv, _ga(ga), prof)
     r["profile"] = prof.id
     s = prof.get("surveillance")
-    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_cm_s']:.1f} cm/s) "
+    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom_text']} MoM (median {r['median_cm_s']:.1f} cm/s) "
                       f"— {r['severity']}",
                       f"  thresholds: {s['mca_mom_mild']:.2f} MoM {r['threshold_mild_cm_s']:.1f}, "
                       f"{s['mca_mom_moderate']:.2f} MoM {r['threshold_moderate_cm_s']:.1f}, "
@@ -184,7 +184,7 @@ def fetal_hb_cmd(hb, ga, profile_id, data, as_json):
     prof = _profile(profile_id, data)
     r = calc.fetal_hb_result(hb, _ga(ga), prof)
     r["profile"] = prof.id
-    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_g_dl']:.1f} g/dL) "
+    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom_text']} MoM (median {r['median_g_dl']:.1f} g/dL) "
                       f"— anaemia: {r['severity']}", f"  source: {r['source']}"])
 
 

@@ -229,6 +229,10 @@ _kind(Kind("dose", "Anti-D given", "pregnancy", (
     Field("indication", "choice", "Indication", required=True, choices=INDICATIONS),
     Field("given_by", "str", "Given by", required=True, max_length=80),
     Field("covers_id", "ref", "Event or birth this dose covers"),
+    # A dose the care engine's plan does not support (more than the profile allows, a woman
+    # managed as RhD positive, after immune anti-D): a clinician records it, with the reason.
+    Field("override_reason", "str", "Reason for departing from the plan", max_length=300,
+          help="only when the dose differs from the plan; recorded by a clinician"),
 ), cross_checks=("dose_canonical",)))
 
 _kind(Kind("doppler", "MCA Doppler", "pregnancy", (

@@ -21,6 +21,11 @@ def get_store():
     return _ext()["store"]
 
 
+def get_users():
+    """The app's clinic.accounts.users.UserStore (<data>/users.json)."""
+    return _ext()["users"]
+
+
 def get_data_dir() -> Path:
     """The app's data folder (config.toml, records, keys, trust list, cards, bundles)."""
     return Path(current_app.config["DATA_DIR"])

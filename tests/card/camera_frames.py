@@ -216,10 +216,11 @@ def camera_browser(video: Path):
 
 def reader_page(browser, base_url: str, user: str, password: str, init_script: str | None = None,
                 service_workers: str = "allow"):
-    """A signed-in phone-sized page allowed to use the camera; its JavaScript errors in .errors.
+    """A signed-in phone-sized page allowed to use the camera; its JavaScript errors in .errors,
+    what its Content-Security-Policy refused in .csp.
     (``service_workers="block"`` when the test routes the page's requests: Playwright does not
     see what the service worker fetches.)"""
-    from tests.web.browser_fixtures import PHONE, TIMEOUT_MS
+    from tests.web.browser_fixtures import PHONE, TIMEOUT_MS, is_csp_violation
     ctx = browser.new_context(base_url=base_url, viewport=PHONE, locale="en-GB", service_workers=service_workers)
     ctx.set_default_timeout(TIMEOUT_MS)
     ctx.grant_permissions(["camera"], origin=base_url)
@@ -228,6 +229,9 @@ def reader_page(browser, base_url: str, user: str, password: str, init_script: s
     page = ctx.new_page()
     page.errors = []
     page.on("pageerror", lambda exc: page.errors.append(str(exc)))
+    # What the page's Content-Security-Policy refused, as the browser reports it on the console.
+    page.csp = []
+    page.on("console", lambda m: page.csp.append(m.text) if is_csp_violation(m.text) else None)
     page.goto("/signin")
     page.fill('input[name="username"]', user)
     page.fill('input[name="password"]', password)

@@ -72,6 +72,7 @@ def test_every_demo_card_reads_with_the_camera_within_a_few_seconds(live, tmp_pa
                 elif page.get_attribute("[data-trust]", "data-trust") != "trusted" or name not in page.content():
                     failures.append(f"{name}: read, but the result page does not show her card as trusted")
             assert not page.errors, page.errors
+            assert not page.csp, page.csp
     out = ROOT / "test-artifacts" / "camera-reads.json"
     out.parent.mkdir(parents=True, exist_ok=True)
     out.write_text(json.dumps(times, indent=1), encoding="utf-8")

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import date, datetime, timedelta
 
 from clinic.care import calc, codes
-from clinic.care.codes import AlertCode, ItemCode
+from clinic.care.codes import NO_LONGER_NEEDED, AlertCode, ItemCode
 from clinic.care.model import Alert, CareContext, PlanItem
 from clinic.care.planning.core import (
     OPEN_STATES,
@@ -107,11 +107,9 @@ def _typing_item_state(pl: Planner, it: PlanItem, records: list[Record], what: s
         it.timeliness = "on-time" if it.closes is None or t <= it.closes else "late"
         return True
     if pl.born_at:
-        if it.closes is not None and pl.born_at <= it.closes:
-            it.state = "not-needed"
-            it.reason = "the baby was born before the window closed: the cord blood typing decides"
-        else:
-            it.state, it.reason = "missed", f"no {what} recorded before the birth"
+        # Only the choices before the birth needed it; now the baby's own typing answers them.
+        it.state = "not-needed"
+        it.reason = f"{NO_LONGER_NEEDED}: no {what} before the birth, and the cord blood typing now decides"
         return True
     if pl.preg.get("status") == "ended-early":
         it.state, it.reason = "not-needed", "the pregnancy ended early"

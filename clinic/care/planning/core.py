@@ -163,6 +163,10 @@ class Antibodies:
     immune_id: str | None = None
     surveillance: bool = False
     findings: list[dict[str, Any]] = field(default_factory=list)
+    # Positive screen id -> what it leaves unidentified (no antibody named, or one of unknown
+    # significance), in words; and the screens whose anti-D is neither passive nor immune yet.
+    unidentified: dict[str, str] = field(default_factory=dict)
+    undetermined: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
