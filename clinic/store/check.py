@@ -115,7 +115,8 @@ class Checking(Writer):
             try:
                 for entry in self._audit.read(path):
                     rep.audit_lines += 1
-                    audited.add((entry.get("id"), entry.get("version")))
+                    if entry.get("action") != "import-declined":  # a copy not taken in stores nothing
+                        audited.add((entry.get("id"), entry.get("version")))
             except StoreCorrupt as e:
                 rep.problems.append(_unparsed(e))
         for rid, (part, rec) in seen.items():

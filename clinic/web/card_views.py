@@ -125,7 +125,9 @@ def import_card():
     except (CardImportError, ValidationError, StoreError) as e:
         return _show(reading, status=422, text=text, import_error=str(e))
     words = {"created": "added", "updated": "updated", "unchanged": "already here",
-             "kept-local": "kept as recorded here"}
+             "kept-local": "kept as recorded here",
+             "not-owner": "not taken in (changes by the issuer to another facility's records; "
+                          "the owner's copies are kept, the changes are in the audit log)"}
     counts = ", ".join(f"{n} {words.get(k, k)}" for k, n in sorted(res.counts.items()))
     issuer = (reading.content.issuer_name if reading.content else "") or res.issuer
     flash(f"Card issue {res.issue} of {issuer} imported: {counts}.")
