@@ -202,6 +202,8 @@ class AlertCode:
     MCA_PSV: Final = "mca-psv"
     FETAL_HB: Final = "fetal-hb"
     NEONATAL_FOLLOW_UP: Final = "neonatal-follow-up"
+    # the clock: entries dated after now (kept and counted; this computer's clock may be behind)
+    CLOCK_BEHIND: Final = "clock-behind"
     # not the engine's: the Today page, when a pregnancy's plan cannot be worked out
     PLAN_FAILED: Final = "plan-failed"
 

@@ -15,7 +15,8 @@ from clinic.records.validate import ValidationError
 from clinic.records.values import utc_text
 from clinic.web import calcs, worklist
 from clinic.web.auth import WRITE_ROLES, csrf_token, current_user, role_required
-from clinic.web.db import get_settings, get_store, plan_for
+from clinic.web.clock import clock_warnings
+from clinic.web.db import get_settings, get_store, plan_for, utcnow
 from clinic.web.saving import Duplicates, create_record, redirect_for, save_booking
 
 bp = Blueprint("api", __name__, url_prefix="/api/v1")
@@ -64,7 +65,8 @@ def session_info():
     s = get_settings()
     return jsonify(user={"username": u.username, "display_name": u.display_name, "role": u.role},
                    csrf_token=csrf_token(), facility={"id": s.facility_id, "name": s.facility_name,
-                                                      "timezone": s.timezone})
+                                                      "timezone": s.timezone},
+                   server_time=utc_text(utcnow()), clock_warnings=clock_warnings())
 
 
 @bp.post("/records")

@@ -18,6 +18,7 @@ import secrets
 from urllib.parse import urlsplit
 
 from flask import Blueprint, abort, flash, g, jsonify, redirect, render_template, request, session, url_for
+from flask.sessions import SecureCookieSessionInterface
 from werkzeug.security import check_password_hash
 
 from clinic.web.db import get_settings
@@ -29,6 +30,16 @@ PUBLIC_BLUEPRINTS = {"setup"}
 SAFE_METHODS = {"GET", "HEAD", "OPTIONS"}
 # Roles that may write records (a district officer reads).
 WRITE_ROLES = ("midwife", "clinician", "lab", "admin")
+
+
+class ServerClockSessions(SecureCookieSessionInterface):
+    """Session cookies without an expiry date, so they do not depend on the phone's clock
+    agreeing with the laptop's: a browser whose clock runs ahead would drop a cookie that
+    "expired" the moment it arrived. The lifetime is kept by the laptop alone: the cookie's
+    signature carries the laptop's time and is refused after PERMANENT_SESSION_LIFETIME."""
+
+    def get_expiration_time(self, app, session):
+        return None
 
 
 def current_user():
@@ -139,6 +150,7 @@ def signout():
 
 
 def init_app(app) -> None:
+    app.session_interface = ServerClockSessions()
     app.before_request(_guard)
     app.add_template_global(csrf_token, "csrf_token")  # macros imported without context use it
 
