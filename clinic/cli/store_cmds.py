@@ -154,13 +154,20 @@ def restore_cmd(backup_file, data, yes):
 @click.command("check")
 @data_option
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON.")
+@click.option("--repair", is_flag=True,
+              help="First rebuild the index (records/index.log) from the partition files, which are the truth.")
 @clean_errors(*LIBRARY_ERRORS)
-def check_cmd(data, as_json):
+def check_cmd(data, as_json, repair):
     """Verify the store: files parse, index consistent, records valid, parents exist, audit readable.
 
-    Exits non-zero when it finds a problem.
+    Exits non-zero when it finds a problem. With --repair the index is rebuilt first (the old
+    one is kept as records/.index.log.replaced).
     """
     store = _open(data)
+    if repair:
+        n = store.repair_index()
+        if not as_json:
+            click.echo(f"Index rebuilt from the partition files: {n} records listed.")
     rep = store.check()
     if as_json:
         emit_json({"ok": rep.ok, "partitions": rep.partitions, "audit_lines": rep.audit_lines,

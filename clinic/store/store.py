@@ -28,7 +28,7 @@ from clinic.store.check import Checking
 from clinic.store.errors import StoreBusy
 from clinic.store.layout import LOCK_FILE, RECORDS_DIR
 from clinic.store.merge import Merging
-from clinic.store.opening import open_records
+from clinic.store.opening import open_records, rebuild_index
 from clinic.store.records_api import RecordsAPI
 from clinic.store.storage import ensure_dir
 
@@ -42,8 +42,14 @@ class Store(RecordsAPI, Merging, Checking):
                  lock_timeout: float | None = None, cache_partitions: int = 64):
         super().__init__(data_dir, settings, lock_timeout=lock_timeout, cache_partitions=cache_partitions)
         with self._locked():
-            open_records(self.records_dir, self._index, self._pcache, on_corrupt=self._corrupt,
-                         backup_first=lambda: self.backup(label="premigrate"))
+            self.recovered += open_records(self.records_dir, self._index, self._pcache, on_corrupt=self._corrupt,
+                                           backup_first=lambda: self.backup(label="premigrate"))
+
+    def repair_index(self) -> int:
+        """Write the index again from the partition files (``rhledger check --repair``); returns
+        the number of records it lists."""
+        with self._locked():
+            return rebuild_index(self.records_dir, self._index, self._pcache)
 
     # ---- backups ----------------------------------------------------------------------
 
