@@ -8,7 +8,7 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data
 from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
 from clinic.records.validate import ValidationError
 from clinic.signing.errors import SigningError
@@ -66,7 +66,7 @@ password_hash = {q(password_hash)}
 
 
 def _open(data: Path | None) -> Store:
-    return Store(resolve_data(data))
+    return open_store(resolve_data(data))
 
 
 @click.command("init")
@@ -111,7 +111,7 @@ def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, 
     ensure_dir(data_dir)
     key = ensure_facility_key(data_dir, settings.facility_id)
     atomic_write_bytes(cfg, text.encode("utf-8"))
-    Store(data_dir, settings=settings)
+    open_store(data_dir, settings)
     click.echo(f"Created {data_dir} for {settings.facility_name} ({settings.facility_id}).")
     click.echo(f"Settings: {cfg} (review the [care] and [stock] values).")
     click.echo(f"Facility signing key fingerprint: {key.fingerprint}")
@@ -133,22 +133,30 @@ def backup_cmd(data):
 @click.argument("backup_file", type=click.Path(dir_okay=False, path_type=Path))
 @data_option
 @click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@click.option("--from-facility", "from_facility", default=None, metavar="ID",
+              help="Restore a backup of another facility (its ID), replacing this installation's records.")
+@click.option("--unverified", is_flag=True,
+              help="Restore a backup whose origin cannot be proven (not signed, or by a key not known here).")
 @clean_errors(*LIBRARY_ERRORS)
-def restore_cmd(backup_file, data, yes):
-    """Replace the store by BACKUP_FILE after verifying its checksums.
+def restore_cmd(backup_file, data, yes, from_facility, unverified):
+    """Replace the store by BACKUP_FILE after verifying its checksums and its signature.
 
-    A safety backup of the current files is made first. Stop the server before restoring.
+    A backup of another facility is refused unless --from-facility names it. A safety backup
+    of the current files is made first. Stop the server before restoring.
     """
+    from clinic.signing.seal import BackupSeal
+
     data_dir = resolve_data(data)
     if not yes:
         click.confirm(f"Replace the records in {data_dir} by {backup_file}?", abort=True)
-    result = Store.restore(data_dir, backup_file)
+    result = Store.restore(data_dir, backup_file, seal=BackupSeal(data_dir), from_facility=from_facility,
+                           unverified=unverified)
     for note in result["notes"]:
         click.echo(f"Note: {note}")
     click.echo(f"Checksums verified; restored {backup_file} (made {result['info'].get('created_at', '?')}).")
     if result["safety_backup"]:
         click.echo(f"The files it replaced are kept in {result['safety_backup']}")
-    Store(data_dir)  # opens (and migrates) the restored store: proves it reads
+    open_store(data_dir)  # opens (and migrates) the restored store: proves it reads
 
 
 @click.command("check")

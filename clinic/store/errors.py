@@ -28,3 +28,8 @@ class BackupInvalid(StoreError):
 
 class StoreBusy(StoreError):
     """Another process held the store lock for longer than the timeout."""
+
+
+class BackupRefused(StoreError):
+    """A backup that is intact but may not be restored here as asked (another facility's, or
+    one whose origin cannot be proven); the message says why and the option that allows it."""

@@ -37,6 +37,7 @@ def _secret_key(data_dir: Path) -> str:
 
 def create_app(data_dir=None, test_config=None) -> Flask:
     """Build the app for one data directory (argument, else $RHLEDGER_DATA, else ./instance)."""
+    from clinic.signing.seal import BackupSeal
     from clinic.store import Store
 
     app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
@@ -54,7 +55,7 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     settings = load_settings(data)
     if not app.config.get("SECRET_KEY"):
         app.config["SECRET_KEY"] = _secret_key(data)
-    store = Store(data, settings)
+    store = Store(data, settings, seal=BackupSeal(data))
     app.extensions["rhledger"] = {"settings": settings, "store": store}
     store.daily_backup_if_due()
 
