@@ -25,7 +25,7 @@ from clinic.config import ConfigError, Settings, load_settings
 from clinic.store import backup as backups
 from clinic.store import migrate
 from clinic.store.check import Checking
-from clinic.store.errors import StoreBusy
+from clinic.store.errors import StoreBusy, unwritable
 from clinic.store.layout import LOCK_FILE, RECORDS_DIR
 from clinic.store.merge import Merging
 from clinic.store.opening import open_records, rebuild_index
@@ -85,6 +85,15 @@ class Store(RecordsAPI, Merging, Checking):
         Returns {"restored": path, "safety_backup": path or None, "info": {...}, "notes": [...]}.
         """
         data_dir = Path(data_dir)
+        try:
+            return cls._restore(data_dir, backup_file, now=now, seal=seal, from_facility=from_facility,
+                                unverified=unverified)
+        except OSError as e:
+            raise unwritable(e, data_dir) or e from None
+
+    @classmethod
+    def _restore(cls, data_dir: Path, backup_file: str | Path, *, now: datetime | None, seal: backups.Seal | None,
+                 from_facility: str | None, unverified: bool) -> dict:
         archive = backups.read_archive(Path(backup_file))
         files, info = archive.files, archive.info
         here = _facility_of(data_dir)

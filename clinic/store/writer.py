@@ -25,7 +25,7 @@ from tinydb import TinyDB
 
 from clinic.config import Settings, load_settings
 from clinic.store.audit import AuditLog
-from clinic.store.errors import StoreBusy, StoreCorrupt
+from clinic.store.errors import StoreBusy, StoreCorrupt, unwritable
 from clinic.store.index import IndexLog, Loc
 from clinic.store.journal import JOURNAL_FILE, Journal
 from clinic.store.layout import AUDIT_DIR, INDEX_FILE, LOCK_FILE, META_FILE, RECORDS_DIR, VERIFIED_FILE, partition_for
@@ -79,7 +79,10 @@ class Writer:
         self.meta_path = self.records_dir / META_FILE
         self._tlock = threading.RLock()
         self._depth = 0
-        ensure_dir(self.data_dir)
+        try:
+            ensure_dir(self.data_dir)
+        except OSError as e:
+            raise unwritable(e, self.data_dir) or e from None
         self._flock = filelock.FileLock(str(self.data_dir / LOCK_FILE), thread_local=False)
         self._pcache = PartitionCache(cache_partitions, on_corrupt=self._corrupt)
         self._index = IndexLog(self.records_dir / INDEX_FILE, on_corrupt=self._corrupt)
@@ -95,7 +98,20 @@ class Writer:
 
     @contextmanager
     def _locked(self):
-        """The thread lock, then (once per thread nesting) the cross-process file lock."""
+        """The thread lock, then (once per thread nesting) the cross-process file lock.
+
+        A full disk or a read-only folder met inside becomes StoreUnwritable, in plain words."""
+        try:
+            with self._locked_inner():
+                yield
+        except OSError as e:
+            u = unwritable(e, self.data_dir)
+            if u is None:
+                raise
+            raise u from e
+
+    @contextmanager
+    def _locked_inner(self):
         with self._tlock:
             if self._depth == 0:
                 try:

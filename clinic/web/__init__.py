@@ -39,6 +39,7 @@ def create_app(data_dir=None, test_config=None) -> Flask:
     """Build the app for one data directory (argument, else $RHLEDGER_DATA, else ./instance)."""
     from clinic.signing.seal import BackupSeal
     from clinic.store import Store
+    from clinic.store.errors import unwritable
 
     app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
     data = data_dir_from(data_dir or (test_config or {}).get("DATA_DIR")).resolve()
@@ -54,7 +55,10 @@ def create_app(data_dir=None, test_config=None) -> Flask:
         app.config.update(test_config)
     settings = load_settings(data)
     if not app.config.get("SECRET_KEY"):
-        app.config["SECRET_KEY"] = _secret_key(data)
+        try:
+            app.config["SECRET_KEY"] = _secret_key(data)
+        except OSError as e:  # a read-only or full data folder: say so, no traceback at start-up
+            raise unwritable(e, data) or e from None
     store = Store(data, settings, seal=BackupSeal(data))
     app.extensions["rhledger"] = {"settings": settings, "store": store}
     store.daily_backup_if_due()

@@ -136,17 +136,28 @@ def import_card():
 
 # ---- printing ----------------------------------------------------------------------------
 
-def _issue(pregnancy_id):
-    from clinic.card.issue import CardIssueError, issue_card
+def _issue(pregnancy_id, *, new: bool = False):
+    """The pregnancy's current card. Showing or downloading never issues one (``new`` is the
+    POST's): with no current issue, the page offers to issue it and a download answers 409."""
+    from clinic.card.issue import CardIssueError, current_card, issue_card
     from clinic.signing.errors import KeyStoreError
     p = get_store().get(pregnancy_id)
     if p is None or p["kind"] != "pregnancy":
         abort(404, f"there is no pregnancy {pregnancy_id}")
     try:
-        return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
-                          now=utcnow())
+        if new:
+            return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id,
+                              by=current_user().username, now=utcnow())
+        return current_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, now=utcnow())
     except (CardIssueError, KeyStoreError) as e:
         abort(500, f"the card could not be issued: {e}")
+
+
+def _issued(pregnancy_id):
+    ic = _issue(pregnancy_id)
+    if ic is None:
+        abort(409, "this pregnancy has no card for its current history yet: issue it on the card page first")
+    return ic
 
 
 def _file(data: bytes, mimetype: str, name: str, download: bool):
@@ -159,15 +170,30 @@ def _file(data: bytes, mimetype: str, name: str, download: bool):
 @login_required
 def pregnancy_card(pregnancy_id):
     ic = _issue(pregnancy_id)
+    if ic is None:
+        from clinic.card.issue import issued
+        last = issued(get_data_dir(), pregnancy_id)
+        woman = get_store().get(get_store().get(pregnancy_id)["woman_id"]) or {}
+        return render_template("card/issue.html", pregnancy_id=pregnancy_id, woman=woman,
+                               last=last[-1] if last else None, nav_active="cards")
     return render_template("card/print.html", ic=ic, v=ic.view, pregnancy_id=pregnancy_id,
                            has_referral=bool(ic.view["referrals"]), nav_active="cards")
+
+
+@bp.route("/pregnancy/<pregnancy_id>", methods=["POST"])
+@role_required(*WRITE_ROLES)
+def issue_pregnancy_card(pregnancy_id):
+    ic = _issue(pregnancy_id, new=True)
+    flash(f"Card issue {ic.issue} made: print it and give it to her; it replaces older cards."
+          if not ic.reused else f"Card issue {ic.issue} is still current: nothing has changed since it was made.")
+    return redirect(url_for("card.pregnancy_card", pregnancy_id=pregnancy_id))
 
 
 @bp.route("/pregnancy/<pregnancy_id>/card.pdf")
 @login_required
 def card_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_pdf(ic.view), "application/pdf", f"card-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
@@ -176,7 +202,7 @@ def card_pdf(pregnancy_id):
 @login_required
 def card_png(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_png(ic.view), "image/png", f"card-issue-{ic.issue}.png",
                  request.args.get("download") == "1")
 
@@ -185,7 +211,7 @@ def card_png(pregnancy_id):
 @login_required
 def sheet_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.sheet_pdf([ic.view] * 4), "application/pdf", f"cards-4up-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
@@ -195,7 +221,7 @@ def sheet_pdf(pregnancy_id):
 def referral_pdf(pregnancy_id):
     from clinic.card import printing
     from clinic.card.view import show_date
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     _, _, entries = get_store().history(pregnancy_id)
     refs = sorted((e for e in entries if e["kind"] == "referral" and not e.get("voided")),
                   key=lambda r: (r["referred_on"], r["created_at"]))
