@@ -85,11 +85,12 @@ class IssuedCard:
     reused: bool  # the same issue as last time: nothing had changed
 
 
-def plan_dict(woman, pregnancy, entries, settings, now: datetime) -> dict:
-    """The care engine's plan for the card's "next actions", as this installation plans."""
+def plan_dict(woman, pregnancy, entries, settings, now: datetime, store=None) -> dict:
+    """The care engine's plan for the card's "next actions", as this installation plans (with
+    what her earlier pregnancies in ``store`` hand on)."""
     from clinic.care_inputs import plan_from_settings
 
-    return plan_from_settings(settings, (woman, pregnancy, entries), now).to_dict()
+    return plan_from_settings(settings, (woman, pregnancy, entries), now, store=store).to_dict()
 
 
 def current_card(data_dir: Path, store, settings, pregnancy_id: str, *,
@@ -140,7 +141,7 @@ def _card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str, now: d
                 "pregnancy_id": pregnancy_id, "issue": issue, "issued_at": issued_at, "card_code": card.code,
                 "sha256": card.payload_hash, "kid": key.kid.hex(), "history": hh, "entries": card.included,
                 "omitted": card.omitted, "qr_version": card.qr_version, "by": by}))
-    plan = plan_dict(woman, pregnancy, entries, settings, now)
+    plan = plan_dict(woman, pregnancy, entries, settings, now, store=store)
     view = build_view(woman, pregnancy, entries, plan=plan,
                       issuer={"name": settings.facility_name, "phone": settings.facility_phone,
                               "facility_id": settings.facility_id},

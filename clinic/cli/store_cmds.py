@@ -8,6 +8,7 @@ from pathlib import Path
 
 import click
 
+from clinic.accounts.users import AccountError
 from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data
 from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
 from clinic.records.validate import ValidationError
@@ -16,7 +17,7 @@ from clinic.store import Store, StoreError
 from clinic.store.backup import sha256_file
 from clinic.store.storage import atomic_write_bytes, ensure_dir
 
-LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, OSError)
+LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, AccountError, OSError)
 
 
 def _toml_str(s: str) -> str:
@@ -25,8 +26,7 @@ def _toml_str(s: str) -> str:
 
 
 def config_text(*, facility_id: str, facility_name: str, kind: str, phone: str, district: str,
-                timezone: str, profile: str, username: str, role: str, password_hash: str,
-                keep: int = 14) -> str:
+                timezone: str, profile: str, keep: int = 14) -> str:
     """The config.toml that `init` writes, with comments for the facility to review."""
     q = _toml_str
     return f"""\
@@ -57,11 +57,12 @@ products = [
 [backup]
 keep = {int(keep)}                      # how many daily backups to keep in <data>/backups
 
-[[accounts]]
-username = {q(username)}
-display_name = {q(username)}
-role = {q(role)}
-password_hash = {q(password_hash)}
+[security]
+idle_minutes = 15              # a session ends after this long without use (a shared laptop)
+lock_after = 5                 # wrong passwords in a row before an account locks
+lock_minutes = 15              # how long it stays locked (an admin may unlock it sooner)
+
+# Staff accounts are in users.json (0600): `rhledger users add NAME --role ROLE`.
 """
 
 
@@ -82,15 +83,22 @@ def _open(data: Path | None) -> Store:
 @click.option("--user", "username", default="admin", show_default=True, help="User name of the first account.")
 @click.option("--role", type=click.Choice(ROLES), default="admin", show_default=True, help="Role of that account.")
 @click.option("--password", default=None, help="Its password (prompted, hidden, when not given).")
+@click.option("--one-time-password", "otp", is_flag=True,
+              help="Print a one-time password instead (shown once; changed at the first sign-in).")
 @clean_errors(*LIBRARY_ERRORS)
 def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, profile, username, role,
-             password):
-    """Create a data directory: config.toml, an empty store and the facility signing key.
+             password, otp):
+    """Create a data directory: config.toml, the first (admin) account, an empty store and the
+    facility signing key.
 
-    Refuses to touch a directory that already has a config.toml.
+    Refuses to touch a directory that already has a config.toml. The folder is made readable
+    by its owner only (0700).
     """
-    from werkzeug.security import generate_password_hash
+    import os
+    import time
 
+    from clinic.accounts.passwords import PasswordPolicyError, check_policy
+    from clinic.accounts.users import AccountError, UserStore, check_username
     from clinic.signing.keys import ensure_facility_key
 
     data_dir = resolve_data(data)
@@ -98,22 +106,35 @@ def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, 
     if cfg.exists():
         fail(f"{cfg} already exists; init never overwrites a configuration. "
              f"Edit it, or choose another directory with --data DIR")
-    if not username.strip():
-        fail("--user: give a user name")
-    if password is None:
+    try:
+        username = check_username(username)
+    except AccountError as e:
+        fail(f"--user: {e}")
+    if otp and password is not None:
+        fail("--one-time-password and --password: give one of them")
+    if password is None and not otp:
         password = click.prompt(f"Password for {username}", hide_input=True, confirmation_prompt=True)
-    if len(password) < 8:
-        fail("--password: use at least 8 characters")
+    if password is not None:
+        try:
+            check_policy(password, "--password")
+        except PasswordPolicyError as e:
+            fail(str(e))
     text = config_text(facility_id=facility_id, facility_name=facility_name or facility_id, kind=kind,
-                       phone=phone, district=district, timezone=timezone, profile=profile,
-                       username=username.strip(), role=role, password_hash=generate_password_hash(password))
+                       phone=phone, district=district, timezone=timezone, profile=profile)
     settings = parse_settings(tomllib.loads(text), str(cfg))  # every value checked before anything is written
     ensure_dir(data_dir)
+    os.chmod(data_dir, 0o700)
     key = ensure_facility_key(data_dir, settings.facility_id)
+    _user, one_time = UserStore(data_dir).add(username, role, password=password, by="rhledger init",
+                                              now=time.time())
     atomic_write_bytes(cfg, text.encode("utf-8"))
     open_store(data_dir, settings)
     click.echo(f"Created {data_dir} for {settings.facility_name} ({settings.facility_id}).")
     click.echo(f"Settings: {cfg} (review the [care] and [stock] values).")
+    click.echo(f"Account {username} ({role}) in {data_dir / 'users.json'}.")
+    if one_time:
+        click.echo(f"One-time password for {username}: {one_time}")
+        click.echo("It is shown only now; choose your own password at the first sign-in.")
     click.echo(f"Facility signing key fingerprint: {key.fingerprint}")
     click.echo("Give this fingerprint to the district office so they can trust this facility's cards.")
 

@@ -454,8 +454,10 @@ def _log(data_dir: Path, entry: dict) -> None:
 
 
 def import_bundle(store, data_dir: Path, data: bytes, *, name: str, trust=None,
-                  now: datetime | None = None) -> ImportResult:
+                  now: datetime | None = None, by: str | None = None) -> ImportResult:
     """Check one bundle completely, then merge its records. A refusal imports nothing.
+
+    ``by``: the person importing (named in the audit trail); else "import:bundle:<facility>".
 
     Returns an ImportResult; a refused bundle has status "refused" and a message (the
     reason is also in the import log).
@@ -475,8 +477,8 @@ def import_bundle(store, data_dir: Path, data: bytes, *, name: str, trust=None,
     outcomes = Counter()
     # The same "now" as the check in read_bundle, so a record that passed it cannot fail here.
     when = max(now, parse_utc(b.header["until"])) if b.header.get("until") else now
-    outcomes.update(store.merge_foreign_many(merge_order(b.records), by=f"import:bundle:{b.facility}", now=when,
-                                             signer=b.facility))
+    outcomes.update(store.merge_foreign_many(merge_order(b.records), by=by or f"import:bundle:{b.facility}",
+                                             now=when, signer=b.facility))
     res = ImportResult(name, "imported", b.facility, sha, len(b.records), dict(sorted(outcomes.items())),
                        already=already)
     _remember_care(data_dir, b)

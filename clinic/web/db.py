@@ -21,6 +21,11 @@ def get_store():
     return _ext()["store"]
 
 
+def get_users():
+    """The app's clinic.accounts.users.UserStore (<data>/users.json)."""
+    return _ext()["users"]
+
+
 def get_data_dir() -> Path:
     """The app's data folder (config.toml, records, keys, trust list, cards, bundles)."""
     return Path(current_app.config["DATA_DIR"])
@@ -43,9 +48,11 @@ def get_profile():
 
 
 def plan_for(pregnancy_id: str, history: tuple | None = None):
-    """The care engine's Plan for one pregnancy, now. ``history``: the (woman, pregnancy, entries)
-    of ``store.history(pregnancy_id)`` when the caller has read it already."""
-    return plan_from_settings(get_settings(), history or get_store().history(pregnancy_id), utcnow())
+    """The care engine's Plan for one pregnancy, now, with what her earlier pregnancies in the
+    store hand on. ``history``: the (woman, pregnancy, entries) of ``store.history(pregnancy_id)``
+    when the caller has read it already."""
+    store = get_store()
+    return plan_from_settings(get_settings(), history or store.history(pregnancy_id), utcnow(), store=store)
 
 
 def _unwritable(e):

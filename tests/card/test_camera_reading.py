@@ -73,6 +73,8 @@ def test_camera_reads_the_card_and_shows_it_trusted(server, tmp_path):
             page = ctx.new_page()
             errors = []
             page.on("pageerror", lambda exc: errors.append(str(exc)))
+            from tests.web.browser_fixtures import is_csp_violation
+            page.on("console", lambda m: errors.append(m.text) if is_csp_violation(m.text) else None)
             page.goto("/signin")
             page.fill('input[name="username"]', "demo")
             page.fill('input[name="password"]', PASSWORD)

@@ -16,7 +16,7 @@ from typing import Any, Iterable, TypedDict
 from clinic.care import codes
 from clinic.care.dating import Dating
 from clinic.care.errors import CareInputError
-from clinic.care.model import Alert, CareContext, PlanItem
+from clinic.care.model import Alert, CareContext, EarlierPregnancy, MissedDose, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
 from clinic.records.values import parse_utc
@@ -184,6 +184,10 @@ class Antibodies:
     immune_id: str | None = None
     surveillance: bool = False
     findings: list[dict[str, Any]] = field(default_factory=list)
+    # Positive screen id -> what it leaves unidentified (no antibody named, or one of unknown
+    # significance), in words; and the screens whose anti-D is neither passive nor immune yet.
+    unidentified: dict[str, str] = field(default_factory=dict)
+    undetermined: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -221,6 +225,9 @@ class Planner:
     unassigned: list[Dose] = field(default_factory=list)
     # Assignment key -> the IU an FMH result asks for in all (more than the standard dose).
     fmh_need: dict[str, int] = field(default_factory=dict)
+    # The woman's earlier pregnancies (plan_pregnancy's ``earlier=``) and this one's missed doses.
+    earlier: tuple[EarlierPregnancy, ...] = ()
+    missed: list[MissedDose] = field(default_factory=list)
     births: list[Record] = field(init=False)
     birth: Record | None = field(init=False)
     born_at: datetime | None = field(init=False)
