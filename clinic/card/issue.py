@@ -93,9 +93,23 @@ def plan_dict(woman, pregnancy, entries, settings, now: datetime, store=None) ->
     return plan_from_settings(settings, (woman, pregnancy, entries), now, store=store).to_dict()
 
 
+def current_card(data_dir: Path, store, settings, pregnancy_id: str, *,
+                 now: datetime | None = None) -> IssuedCard | None:
+    """The card last issued, remade, when the history has not changed since; None when a new
+    issue is needed (nothing is logged: showing a card never issues one)."""
+    return _card(data_dir, store, settings, pregnancy_id, by="", now=now, new_issue=False)
+
+
 def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = "cli",
                now: datetime | None = None) -> IssuedCard:
     """Make (or, when nothing changed, remake) the card of a pregnancy and log its issue."""
+    card = _card(data_dir, store, settings, pregnancy_id, by=by, now=now, new_issue=True)
+    assert card is not None  # a new issue is always made when one is needed
+    return card
+
+
+def _card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str, now: datetime | None,
+          new_issue: bool) -> IssuedCard | None:
     from clinic.store import NotFound
     now = now or datetime.now(timezone.utc)
     try:
@@ -116,6 +130,8 @@ def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = 
                  and int(last["issue"]) >= highest_issue(data_dir, pregnancy_id))
         if reuse:
             issue, issued_at = int(last["issue"]), last["issued_at"]
+        elif not new_issue:
+            return None
         else:
             issue, issued_at = highest_issue(data_dir, pregnancy_id) + 1, utc_text(now)
         card = make_card_text(woman, pregnancy, entries, key=key, issue=issue, issued_at=issued_at,

@@ -220,6 +220,8 @@ class AlertCode:
     EARLIER_DOSE_MISSED: Final = "earlier-dose-missed"        # record_ids: the earlier pregnancy, this one's screen
     EARLIER_ANTIBODY: Final = "earlier-antibody"
     EARLIER_PREGNANCY_UNREADABLE: Final = "earlier-pregnancy-unreadable"
+    # the clock: entries dated after now (kept and counted; this computer's clock may be behind)
+    CLOCK_BEHIND: Final = "clock-behind"
     # not the engine's: the Today page, when a pregnancy's plan cannot be worked out
     PLAN_FAILED: Final = "plan-failed"
 

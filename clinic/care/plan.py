@@ -1,7 +1,7 @@
 """plan_pregnancy: one pregnancy's history + now + profile -> what is due, overdue, missed, wrong.
 
-The engine reads stored record dicts (schema.py), skips voided ones and ones dated after
-``now`` (a plan is "as of now"), sorts the rest by (time, id) so the order given never
+The engine reads stored record dicts (schema.py), skips voided ones, keeps ones dated after
+``now`` (counted, with a clock warning), sorts them by (time, id) so the order given never
 matters, and derives every item from the profile. Nothing here stores anything.
 
 This module runs the rule sections in order; each lives in ``clinic.care.planning``:
@@ -60,7 +60,7 @@ def _start(woman: dict, pregnancy: dict, entries: Iterable[Any], now: datetime, 
     """The facts every section reads, drawn once (their alerts come first, in this order)."""
     h = History(entries, now, ctx.tz)
     dating = _dating(pregnancy, p)
-    alerts: list[Alert] = []
+    alerts: list[Alert] = h.clock_alerts()
     status = rhd.rhd_status(h.of("typing"), p, alerts)
     counted = doses.read_doses(h, ctx.tz, alerts, p)
     ab = judge_antibodies(h, counted, p, alerts)

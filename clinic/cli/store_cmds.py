@@ -9,7 +9,7 @@ from pathlib import Path
 import click
 
 from clinic.accounts.users import AccountError
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data
 from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
 from clinic.records.validate import ValidationError
 from clinic.signing.errors import SigningError
@@ -67,7 +67,7 @@ lock_minutes = 15              # how long it stays locked (an admin may unlock i
 
 
 def _open(data: Path | None) -> Store:
-    return Store(resolve_data(data))
+    return open_store(resolve_data(data))
 
 
 @click.command("init")
@@ -128,7 +128,7 @@ def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, 
     _user, one_time = UserStore(data_dir).add(username, role, password=password, by="rhledger init",
                                               now=time.time())
     atomic_write_bytes(cfg, text.encode("utf-8"))
-    Store(data_dir, settings=settings)
+    open_store(data_dir, settings)
     click.echo(f"Created {data_dir} for {settings.facility_name} ({settings.facility_id}).")
     click.echo(f"Settings: {cfg} (review the [care] and [stock] values).")
     click.echo(f"Account {username} ({role}) in {data_dir / 'users.json'}.")
@@ -154,34 +154,49 @@ def backup_cmd(data):
 @click.argument("backup_file", type=click.Path(dir_okay=False, path_type=Path))
 @data_option
 @click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@click.option("--from-facility", "from_facility", default=None, metavar="ID",
+              help="Restore a backup of another facility (its ID), replacing this installation's records.")
+@click.option("--unverified", is_flag=True,
+              help="Restore a backup whose origin cannot be proven (not signed, or by a key not known here).")
 @clean_errors(*LIBRARY_ERRORS)
-def restore_cmd(backup_file, data, yes):
-    """Replace the store by BACKUP_FILE after verifying its checksums.
+def restore_cmd(backup_file, data, yes, from_facility, unverified):
+    """Replace the store by BACKUP_FILE after verifying its checksums and its signature.
 
-    A safety backup of the current files is made first. Stop the server before restoring.
+    A backup of another facility is refused unless --from-facility names it. A safety backup
+    of the current files is made first. Stop the server before restoring.
     """
+    from clinic.signing.seal import BackupSeal
+
     data_dir = resolve_data(data)
     if not yes:
         click.confirm(f"Replace the records in {data_dir} by {backup_file}?", abort=True)
-    result = Store.restore(data_dir, backup_file)
+    result = Store.restore(data_dir, backup_file, seal=BackupSeal(data_dir), from_facility=from_facility,
+                           unverified=unverified)
     for note in result["notes"]:
         click.echo(f"Note: {note}")
     click.echo(f"Checksums verified; restored {backup_file} (made {result['info'].get('created_at', '?')}).")
     if result["safety_backup"]:
         click.echo(f"The files it replaced are kept in {result['safety_backup']}")
-    Store(data_dir)  # opens (and migrates) the restored store: proves it reads
+    open_store(data_dir)  # opens (and migrates) the restored store: proves it reads
 
 
 @click.command("check")
 @data_option
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON.")
+@click.option("--repair", is_flag=True,
+              help="First rebuild the index (records/index.log) from the partition files, which are the truth.")
 @clean_errors(*LIBRARY_ERRORS)
-def check_cmd(data, as_json):
+def check_cmd(data, as_json, repair):
     """Verify the store: files parse, index consistent, records valid, parents exist, audit readable.
 
-    Exits non-zero when it finds a problem.
+    Exits non-zero when it finds a problem. With --repair the index is rebuilt first (the old
+    one is kept as records/.index.log.replaced).
     """
     store = _open(data)
+    if repair:
+        n = store.repair_index()
+        if not as_json:
+            click.echo(f"Index rebuilt from the partition files: {n} records listed.")
     rep = store.check()
     if as_json:
         emit_json({"ok": rep.ok, "partitions": rep.partitions, "audit_lines": rep.audit_lines,

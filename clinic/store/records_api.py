@@ -23,6 +23,12 @@ from clinic.store.storage import TABLE
 from clinic.store.writer import Writer, copy_record
 
 
+def _change_time(current: Mapping[str, Any], now: datetime) -> str:
+    """When an amendment or void is recorded: now, but never before the record's own times (a
+    clock that runs behind must not date a change before what it changes)."""
+    return max(utc_text(now), current.get("created_at") or "", current.get("amended_at") or "")
+
+
 @dataclass(frozen=True)
 class Created:
     """What ``Store.create`` did: ``record`` as stored, and ``created`` False when this id was
@@ -139,7 +145,7 @@ class RecordsAPI(Writer):
                        for k in sorted(set(old) | set(merged)) if old.get(k) != merged.get(k)}
             if not changes:
                 return copy_record(current)
-            at = utc_text(now)
+            at = _change_time(current, now)
             record = {**{k: v for k, v in current.items() if k in ENVELOPE_FIELDS}, **merged}
             record.update(version=current["version"] + 1, amended_at=at, amended_by=by,
                           amendments=list(current.get("amendments") or [])
@@ -159,7 +165,7 @@ class RecordsAPI(Writer):
             if current.get("voided"):
                 raise Conflict(f"record {record_id} is already voided ({current.get('voided_reason')})",
                                current_version=current["version"])
-            at = utc_text(now)
+            at = _change_time(current, now)
             changes = {"voided": {"old": False, "new": True}, "voided_reason": {"old": None, "new": reason}}
             record = dict(current)
             record.update(voided=True, voided_reason=reason, version=current["version"] + 1,
@@ -254,6 +260,12 @@ class RecordsAPI(Writer):
                 with self._locked():  # settles an interrupted write (or waits for one in progress)
                     pass
             return self._audit.entries(record_id, since)
+
+    def latest_change(self) -> str | None:
+        """UTC text of the latest change recorded here (create, amend, void, import), by the clock
+        that recorded it; None for an empty store. A clock now behind it has been set back."""
+        with self._tlock:
+            return self._audit.latest_at()
 
     def iter_records(self, kind: str | None = None, since: str | None = None,
                      facility: str | None = None) -> Iterator[dict]:

@@ -37,7 +37,9 @@ def _secret_key(data_dir: Path) -> str:
 
 def create_app(data_dir=None, test_config=None) -> Flask:
     """Build the app for one data directory (argument, else $RHLEDGER_DATA, else ./instance)."""
+    from clinic.signing.seal import BackupSeal
     from clinic.store import Store
+    from clinic.store.errors import unwritable
 
     app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
     # "//" in a path is not quietly redirected (an API client gets a 404 with a message instead).
@@ -57,8 +59,11 @@ def create_app(data_dir=None, test_config=None) -> Flask:
         app.config.update(test_config)
     settings = load_settings(data)
     if not app.config.get("SECRET_KEY"):
-        app.config["SECRET_KEY"] = _secret_key(data)
-    store = Store(data, settings)
+        try:
+            app.config["SECRET_KEY"] = _secret_key(data)
+        except OSError as e:  # a read-only or full data folder: say so, no traceback at start-up
+            raise unwritable(e, data) or e from None
+    store = Store(data, settings, seal=BackupSeal(data))
     from clinic.accounts.users import LockPolicy, UserStore
     from clinic.store.permissions import check_modes
 

@@ -63,6 +63,7 @@ ENDPOINTS: dict[str, object] = {
     "card.photo": R.CARD_READ,
     "card.import_card": R.CARD_IMPORT,
     "card.pregnancy_card": R.CARD_PRINT,
+    "card.issue_pregnancy_card": R.CARD_PRINT,
     "card.card_pdf": R.CARD_PRINT,
     "card.card_png": R.CARD_PRINT,
     "card.sheet_pdf": R.CARD_PRINT,

@@ -15,7 +15,8 @@ from clinic.records.validate import ValidationError
 from clinic.records.values import utc_text
 from clinic.web import calcs, worklist
 from clinic.web.auth import csrf_token, current_user, require_kind
-from clinic.web.db import get_settings, get_store, plan_for
+from clinic.web.clock import clock_warnings
+from clinic.web.db import get_settings, get_store, plan_for, utcnow
 from clinic.web.saving import Duplicates, check_dose_amendment, create_record, redirect_for, save_booking
 
 bp = Blueprint("api", __name__, url_prefix="/api/v1")
@@ -39,11 +40,42 @@ def jsonable(obj):
     return obj
 
 
+class BadBody(Exception):
+    """A request body that is not text this API can take (answered 400)."""
+
+
+def _broken_text(v, where: str = "body") -> str | None:
+    """Where a lone UTF-16 surrogate (a "\\ud800" escape in JSON) hides in a parsed body, if anywhere:
+    it cannot be stored, shown or printed."""
+    if isinstance(v, str):
+        return where if any(0xD800 <= ord(c) <= 0xDFFF for c in v) else None
+    if isinstance(v, dict):
+        for k, x in v.items():
+            hit = _broken_text(k, where) or _broken_text(x, f"{where}.{k}" if where != "body" else str(k))
+            if hit:
+                return hit
+    if isinstance(v, list):
+        for i, x in enumerate(v):
+            hit = _broken_text(x, f"{where}[{i}]")
+            if hit:
+                return hit
+    return None
+
+
 def _body() -> dict:
     body = request.get_json(silent=True)
     if not isinstance(body, dict):
         raise ValidationError({"body": "send a JSON object (Content-Type: application/json)"})
+    where = _broken_text(body)
+    if where:
+        raise BadBody(f"{where}: holds a broken character (a lone UTF-16 surrogate such as \\ud800), which "
+                      f"cannot be stored; send the text as UTF-8")
     return body
+
+
+@bp.errorhandler(BadBody)
+def _bad_body(e):
+    return jsonify(error=str(e)), 400
 
 
 def _unprocessable(e: ValidationError):
@@ -64,7 +96,8 @@ def session_info():
     s = get_settings()
     return jsonify(user={"username": u.username, "display_name": u.display_name, "role": u.role},
                    csrf_token=csrf_token(), facility={"id": s.facility_id, "name": s.facility_name,
-                                                      "timezone": s.timezone})
+                                                      "timezone": s.timezone},
+                   server_time=utc_text(utcnow()), clock_warnings=clock_warnings())
 
 
 @bp.post("/records")

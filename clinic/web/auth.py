@@ -32,6 +32,7 @@ from datetime import datetime
 from urllib.parse import urlsplit
 
 from flask import Blueprint, abort, current_app, flash, g, jsonify, redirect, render_template, request, session, url_for
+from flask.sessions import SecureCookieSessionInterface
 
 from clinic.accounts import roles
 from clinic.accounts.passwords import PasswordPolicyError
@@ -62,6 +63,16 @@ def _state() -> dict:
     if st is None:
         st = ext.setdefault("auth", {"lock": threading.Lock(), "failures": {}, "ended": {}})
     return st
+
+
+class ServerClockSessions(SecureCookieSessionInterface):
+    """Session cookies without an expiry date, so they do not depend on the phone's clock
+    agreeing with the laptop's: a browser whose clock runs ahead would drop a cookie that
+    "expired" the moment it arrived. The lifetime is kept by the laptop alone: the cookie's
+    signature carries the laptop's time and is refused after PERMANENT_SESSION_LIFETIME."""
+
+    def get_expiration_time(self, app, session):
+        return None
 
 
 def current_user():
@@ -374,6 +385,7 @@ def password():
 
 
 def init_app(app) -> None:
+    app.session_interface = ServerClockSessions()
     app.before_request(_guard)
     app.add_template_global(csrf_token, "csrf_token")  # macros imported without context use it
     app.add_template_global(may, "may")

@@ -78,14 +78,22 @@ def _yes_no(args, name, default: bool | None) -> bool | None:
     raise CareInputError(name, f"{v!r} is not yes or no")
 
 
+# Dates a calculator accepts: far beyond any pregnancy, far inside what date arithmetic can hold.
+DATE_MIN, DATE_MAX = date(1900, 1, 1), date(2199, 12, 31)
+
+
 def _date(args, name):
     v = (args.get(name) or "").strip()
     if not v:
         return None
     try:
-        return date.fromisoformat(v)
+        d = date.fromisoformat(v)
     except ValueError:
         raise CareInputError(name, f"{v!r} is not a date (YYYY-MM-DD)") from None
+    if not DATE_MIN <= d <= DATE_MAX:
+        raise CareInputError(name, f"{v} is outside the dates a calculator works with "
+                                   f"({DATE_MIN.isoformat()} to {DATE_MAX.isoformat()})")
+    return d
 
 
 def run_mca(args):
@@ -261,6 +269,8 @@ def run(name: str, args) -> dict:
         raise ValidationError(e.errors) from None
     except CareError as e:
         raise ValidationError({"_calc": str(e)}) from None
+    except OverflowError:  # a result beyond year 9999 from inputs each in range
+        raise ValidationError({"_calc": "the inputs give a date outside the calendar; check them"}) from None
     if hasattr(out, "to_dict"):
         out = out.to_dict()
     return out

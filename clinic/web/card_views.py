@@ -121,7 +121,9 @@ def import_card():
     except (CardImportError, ValidationError, StoreError) as e:
         return _show(reading, status=422, text=text, import_error=str(e))
     words = {"created": "added", "updated": "updated", "unchanged": "already here",
-             "kept-local": "kept as recorded here"}
+             "kept-local": "kept as recorded here",
+             "not-owner": "not taken in (changes by the issuer to another facility's records; "
+                          "the owner's copies are kept, the changes are in the audit log)"}
     counts = ", ".join(f"{n} {words.get(k, k)}" for k, n in sorted(res.counts.items()))
     issuer = (reading.content.issuer_name if reading.content else "") or res.issuer
     flash(f"Card issue {res.issue} of {issuer} imported: {counts}.")
@@ -130,17 +132,28 @@ def import_card():
 
 # ---- printing ----------------------------------------------------------------------------
 
-def _issue(pregnancy_id):
-    from clinic.card.issue import CardIssueError, issue_card
+def _issue(pregnancy_id, *, new: bool = False):
+    """The pregnancy's current card. Showing or downloading never issues one (``new`` is the
+    POST's): with no current issue, the page offers to issue it and a download answers 409."""
+    from clinic.card.issue import CardIssueError, current_card, issue_card
     from clinic.signing.errors import KeyStoreError
     p = get_store().get(pregnancy_id)
     if p is None or p["kind"] != "pregnancy":
         abort(404, f"there is no pregnancy {pregnancy_id}")
     try:
-        return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
-                          now=utcnow())
+        if new:
+            return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id,
+                              by=current_user().username, now=utcnow())
+        return current_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, now=utcnow())
     except (CardIssueError, KeyStoreError) as e:
         abort(500, f"the card could not be issued: {e}")
+
+
+def _issued(pregnancy_id):
+    ic = _issue(pregnancy_id)
+    if ic is None:
+        abort(409, "this pregnancy has no card for its current history yet: issue it on the card page first")
+    return ic
 
 
 def _file(data: bytes, mimetype: str, name: str, download: bool):
@@ -152,14 +165,28 @@ def _file(data: bytes, mimetype: str, name: str, download: bool):
 @bp.route("/pregnancy/<pregnancy_id>")
 def pregnancy_card(pregnancy_id):
     ic = _issue(pregnancy_id)
+    if ic is None:
+        from clinic.card.issue import issued
+        last = issued(get_data_dir(), pregnancy_id)
+        woman = get_store().get(get_store().get(pregnancy_id)["woman_id"]) or {}
+        return render_template("card/issue.html", pregnancy_id=pregnancy_id, woman=woman,
+                               last=last[-1] if last else None, nav_active="cards")
     return render_template("card/print.html", ic=ic, v=ic.view, pregnancy_id=pregnancy_id,
                            has_referral=bool(ic.view["referrals"]), nav_active="cards")
+
+
+@bp.route("/pregnancy/<pregnancy_id>", methods=["POST"])
+def issue_pregnancy_card(pregnancy_id):
+    ic = _issue(pregnancy_id, new=True)
+    flash(f"Card issue {ic.issue} made: print it and give it to her; it replaces older cards."
+          if not ic.reused else f"Card issue {ic.issue} is still current: nothing has changed since it was made.")
+    return redirect(url_for("card.pregnancy_card", pregnancy_id=pregnancy_id))
 
 
 @bp.route("/pregnancy/<pregnancy_id>/card.pdf")
 def card_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_pdf(ic.view), "application/pdf", f"card-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
@@ -167,7 +194,7 @@ def card_pdf(pregnancy_id):
 @bp.route("/pregnancy/<pregnancy_id>/card.png")
 def card_png(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_png(ic.view), "image/png", f"card-issue-{ic.issue}.png",
                  request.args.get("download") == "1")
 
@@ -175,7 +202,7 @@ def card_png(pregnancy_id):
 @bp.route("/pregnancy/<pregnancy_id>/sheet.pdf")
 def sheet_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.sheet_pdf([ic.view] * 4), "application/pdf", f"cards-4up-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
@@ -184,7 +211,7 @@ def sheet_pdf(pregnancy_id):
 def referral_pdf(pregnancy_id):
     from clinic.card import printing
     from clinic.card.view import show_date
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     _, _, entries = get_store().history(pregnancy_id)
     refs = sorted((e for e in entries if e["kind"] == "referral" and not e.get("voided")),
                   key=lambda r: (r["referred_on"], r["created_at"]))

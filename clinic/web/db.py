@@ -55,5 +55,19 @@ def plan_for(pregnancy_id: str, history: tuple | None = None):
     return plan_from_settings(get_settings(), history or store.history(pregnancy_id), utcnow(), store=store)
 
 
+def _unwritable(e):
+    """A full disk or a read-only data folder, in plain words (503: the laptop cannot save now)."""
+    from flask import jsonify, render_template, request
+
+    current_app.logger.error("%s", e)
+    if request.path.startswith("/api/"):
+        return jsonify(error=str(e)), 503
+    return render_template("error.html", code=503, message=str(e)), 503
+
+
 def init_app(app: Flask) -> None:
-    """Nothing to set up or close per request: the Store is durable before each call returns."""
+    """Nothing to set up or close per request: the Store is durable before each call returns.
+    A store that cannot be written answers in plain words (``_unwritable``)."""
+    from clinic.store.errors import StoreUnwritable
+
+    app.register_error_handler(StoreUnwritable, _unwritable)

@@ -14,7 +14,7 @@ from clinic.care.codes import gives_anti_d as codes_gives_anti_d
 from clinic.records.choices import plain_words
 from clinic.records.schema import KINDS
 from clinic.records.values import format_ga
-from clinic.web.clock import now_local, today_local
+from clinic.web.clock import clock_warnings, note_client_time, now_local, today_local
 from clinic.web.db import get_settings, utcnow
 
 
@@ -149,6 +149,8 @@ def init_app(app: Flask) -> None:
     app.add_template_filter(deadline_short, "deadline_short")
     app.add_template_global(today_local, "today_local")
     app.add_template_global(now_local, "now_local")
+    app.add_template_global(clock_warnings, "clock_warnings")
+    app.before_request(note_client_time)
     app.add_template_global(KINDS, "KINDS")
     app.add_template_global(entry_kind_for, "entry_kind_for")
     app.add_template_global(gives_anti_d, "gives_anti_d")

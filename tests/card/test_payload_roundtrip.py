@@ -106,7 +106,7 @@ screens = st.fixed_dictionaries({
                            unique=True),
     "titre": st.sampled_from([1, 2, 4, 8, 16, 32, 64, 128, 256, 512, 1024, 2048, 4096]),
     "anti_d_iu_ml": st.floats(0, 1000, allow_nan=False).map(lambda x: round(x, 2)),
-    "lab": st.text(st.characters(min_codepoint=32, max_codepoint=0x2FFF, blacklist_categories=("Cs",)),
+    "lab": st.text(st.characters(min_codepoint=32, max_codepoint=0x2FFF, blacklist_categories=("Cs", "Cc")),
                    max_size=40).map(str.strip),
 })
 

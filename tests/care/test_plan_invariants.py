@@ -147,13 +147,13 @@ def _identified(s, profile) -> bool:
 @given(h=screened_histories())
 def test_no_positive_screen_is_left_without_an_identified_antibody_or_an_open_task(h):
     from clinic.care import load_profile
-    from clinic.records.values import parse_utc
 
     entries, now, pid = h
     profile = load_profile(pid)
     plan = make_plan(entries, now=now, profile=pid)
-    seen = sorted((e for e in entries if e["kind"] == "screen" and parse_utc(e["sampled_at"]) <= now),
-                  key=lambda e: (e["sampled_at"], e["id"]))
+    # Every screen counts, one dated after now too (issue 16: the plan never ignores an entry
+    # because the clock says it has not happened yet).
+    seen = sorted((e for e in entries if e["kind"] == "screen"), key=lambda e: (e["sampled_at"], e["id"]))
     positives = [s for s in seen if s["result"] == "positive"]
     last_unidentified = max((i for i, s in enumerate(positives) if not _identified(s, profile)), default=None)
     answered = last_unidentified is None or any(_identified(s, profile)
@@ -209,7 +209,7 @@ def test_the_anti_d_asked_for_a_bleed_plus_what_was_given_is_the_published_total
     # the published total for the measured bleed: the profile's rule on the Kleihauer result
     total = calc.fmh_result(profile=load_profile(pid), fetal_cell_percent=pct, maternal_volume_ml=5000.0,
                             vial_sizes_iu=(1500,))["dose_iu"]
-    doses = [e for e in entries if e["kind"] == "dose" and parse_utc(e["given_at"]) <= now]
+    doses = [e for e in entries if e["kind"] == "dose"]  # one dated after now counts too (issue 16)
     # one administration recorded twice is counted once (same IU and lot within 30 minutes)
     counted = []
     for d in sorted(doses, key=lambda d: (d["given_at"], d["id"])):

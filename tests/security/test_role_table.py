@@ -92,6 +92,7 @@ def _cases() -> list[Case]:
         Case("card.photo", "POST", "/cards/photo", CARD_READ, form={}),
         Case("card.import_card", "POST", "/cards/import", CARD_WRITE, form={"code": "RHL1:NOTACARD"}),
         Case("card.pregnancy_card", "GET", "/cards/pregnancy/{pid}", CARD_WRITE),
+        Case("card.issue_pregnancy_card", "POST", "/cards/pregnancy/{pid}", CARD_WRITE, form={}),
         Case("card.card_pdf", "GET", "/cards/pregnancy/{pid}/card.pdf", CARD_WRITE),
         Case("card.card_png", "GET", "/cards/pregnancy/{pid}/card.png", CARD_WRITE),
         Case("card.sheet_pdf", "GET", "/cards/pregnancy/{pid}/sheet.pdf", CARD_WRITE),

@@ -199,6 +199,8 @@ def test_pdfs_print_the_markup_as_text_and_fetch_nothing(world, listener, monkey
 
     monkeypatch.setattr(pdf, "fetcher_class", watching)
     c = Client(world.app, "clinician")
+    # Issue 16: the card is issued by the card page's POST; downloading never issues one.
+    assert c.open("POST", f"/cards/pregnancy/{world.pid}", form={}).status_code == 302
     for url in (f"/cards/pregnancy/{world.pid}/card.pdf", f"/cards/pregnancy/{world.pid}/referral.pdf",
                 f"/cards/pregnancy/{world.pid}/sheet.pdf"):
         r = c.get(url)
