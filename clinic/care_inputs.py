@@ -1,7 +1,7 @@
 """The care engine's inputs from an installation's settings, built in one place.
 
     profile, context = care_inputs(settings)
-    plan = plan_from_settings(settings, store.history(pregnancy_id), now)
+    plan = plan_from_settings(settings, store.history(pregnancy_id), now, store=store)
 
 A facility plans with its protocol profile (with its local overrides) and a ``CareContext``
 (population RhD-negative frequency, default maternal blood volume, stocked products, time
@@ -17,7 +17,9 @@ import threading
 from typing import Any, Iterable, Mapping
 from zoneinfo import ZoneInfo
 
-from clinic.care import CareContext, Plan, Product, Profile, load_profile, plan_pregnancy
+from clinic.care import CareContext, CareError, Plan, Product, Profile, load_profile, plan_pregnancy
+from clinic.care.model import EarlierPregnancy
+from clinic.care.planning.carried import summarise_earlier
 
 # Loading a profile parses and checks its TOML chain; a page or a report plans many pregnancies
 # with the same few inputs. Profiles are never changed once loaded, so one can be shared.
@@ -69,11 +71,40 @@ def care_inputs(settings) -> tuple[Profile, CareContext]:
                         maternal_blood_volume_ml=settings.maternal_blood_volume_ml)
 
 
-def plan_from_settings(settings, history: tuple[dict, dict, list[dict]], now) -> Plan:
+def earlier_pregnancies(settings, store, pregnancy: dict, now) -> list[EarlierPregnancy]:
+    """The woman's pregnancies booked before ``pregnancy`` in ``store`` (a clinic.store.Store, or
+    anything with ``pregnancies_of_woman`` and ``history``), each summarised from its own plan at
+    ``now``. One whose plan cannot be worked out is handed on with its problem, never dropped."""
+    woman_id = pregnancy.get("woman_id")
+    if not woman_id:
+        return []
+    def order(p: dict) -> tuple[str, str]:
+        return (p.get("booked_on") or "", p.get("created_at") or "")
+
+    # Booked before this one (a pregnancy read from a card need not be in the store yet).
+    before = [p for p in store.pregnancies_of_woman(woman_id)
+              if not p.get("voided") and p["id"] != pregnancy.get("id") and order(p) < order(pregnancy)]
+    profile, context = care_inputs(settings)
+    out = []
+    for p in before:
+        woman, preg, entries = store.history(p["id"])
+        try:
+            plan = plan_pregnancy(woman, preg, entries, now=now, profile=profile, context=context)
+        except CareError as e:
+            out.append(EarlierPregnancy(p["id"], p.get("booked_on"), problem=str(e)))
+            continue
+        out.append(summarise_earlier(preg, entries, plan, tz=context.tz))
+    return out
+
+
+def plan_from_settings(settings, history: tuple[dict, dict, list[dict]], now, *, store=None) -> Plan:
     """The care engine's plan of one pregnancy as this installation sees it at ``now`` (aware).
 
-    ``history`` is ``(woman, pregnancy, entries)`` as ``Store.history`` returns it.
+    ``history`` is ``(woman, pregnancy, entries)`` as ``Store.history`` returns it. With ``store``
+    the woman's earlier pregnancies there are planned too and handed on (``earlier_pregnancies``):
+    a dose missed or an antibody found in one raises an alert in this plan.
     """
     woman, pregnancy, entries = history
     profile, context = care_inputs(settings)
-    return plan_pregnancy(woman, pregnancy, entries, now=now, profile=profile, context=context)
+    earlier = earlier_pregnancies(settings, store, pregnancy, now) if store is not None else []
+    return plan_pregnancy(woman, pregnancy, entries, now=now, profile=profile, context=context, earlier=earlier)

@@ -15,14 +15,14 @@ from pathlib import Path
 from typing import Any
 from zoneinfo import ZoneInfo, ZoneInfoNotFoundError
 
+from clinic.accounts.roles import ROLES
 from clinic.care.model import Product
 
 DEFAULT_DATA_DIR = "instance"
 CONFIG_FILE = "config.toml"
 FACILITY_KINDS = ("clinic", "hospital", "district")
-ROLES = ("midwife", "clinician", "lab", "district-officer", "admin")
-# Roles that may see names on follow-up lists (district reporting).
-ROLES_SEEING_NAMES = ("midwife", "clinician", "district-officer", "admin")
+# [security] values and their allowed ranges: (default, low, high).
+SECURITY_RANGES = {"idle_minutes": (15, 1, 720), "lock_after": (5, 3, 20), "lock_minutes": (15, 1, 1440)}
 
 
 class ConfigError(ValueError):
@@ -36,6 +36,8 @@ def data_dir_from(option: str | os.PathLike | None) -> Path:
 
 @dataclass(frozen=True)
 class Account:
+    """An account of an older config.toml ([[accounts]]); accounts now live in users.json."""
+
     username: str
     display_name: str
     role: str
@@ -101,6 +103,11 @@ class Settings:
     products: tuple[Product, ...] = ()
     backups_keep: int = 14
     accounts: tuple[Account, ...] = ()
+    # Sessions end after this long without use (a shared laptop); accounts lock after
+    # lock_after wrong passwords in a row, for lock_minutes.
+    idle_minutes: int = 15
+    lock_after: int = 5
+    lock_minutes: int = 15
     supply: SupplySettings = field(default_factory=SupplySettings)
 
     @property
@@ -164,6 +171,13 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
     keep = int(doc.get("backup", {}).get("keep", 14))
     if keep < 1:
         raise ConfigError(f"backup.keep {keep} in {source}: keep at least 1")
+    security = {}
+    sec = doc.get("security", {})
+    for key, (default, lo, hi) in SECURITY_RANGES.items():
+        v = sec.get(key, default)
+        if isinstance(v, bool) or not isinstance(v, int) or not lo <= v <= hi:
+            raise ConfigError(f"security.{key} {v!r} in {source}: a whole number from {lo} to {hi}")
+        security[key] = v
     return Settings(
         facility_id=fid,
         facility_name=str(fac.get("name", fid)),
@@ -179,6 +193,7 @@ def parse_settings(doc: dict[str, Any], source: str = CONFIG_FILE) -> Settings:
         backups_keep=keep,
         accounts=tuple(accounts),
         supply=parse_supply(doc.get("supply", {}), source),
+        **security,
     )
 
 

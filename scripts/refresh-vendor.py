@@ -48,13 +48,28 @@ LIBRARIES = (
         files={"dist/umd.js": "idb-keyval.umd.js", "LICENCE": "LICENSE"},
         used_for="IndexedDB outbox of forms saved on the phone (static/js/outbox/queue.js, page and service worker)",
     ),
-    # The card reader's QR decoder (static/vendor/jsqr/VERSION.txt is the card developer's note).
+    # The card reader's last-fallback QR decoder (static/vendor/jsqr/VERSION.txt is the card developer's note).
     Library(
         name="jsqr",
         version="1.4.0",
         integrity="sha512-dxLob7q65Xg2DvstYkRpkYtmKm2sPJ9oFhrhmudT1dZvNFFTlroai3AWSpLey/w5vMcLBXRgOJsbXpdN9HzU/A==",
         files={"dist/jsQR.js": "jsQR.js", "LICENSE": "LICENSE"},
-        used_for="reading the patient-held card's QR code with the camera (static/js/card-reader.js)",
+        used_for="the camera card reader's last-fallback QR decoder, for a browser with neither BarcodeDetector "
+                 "nor WebAssembly (static/js/card-reader.js)",
+    ),
+    # ZXing-C++ compiled to WebAssembly, reader build only (the writer and the full build are not
+    # needed). The classic-script (IIFE) file defines window.ZXingWASM; card-reader.js points its
+    # locateFile at the vendored .wasm, so the library's default CDN address is never used.
+    # LICENSE is zxing-wasm's (MIT); LICENSE-third-party.txt beside it covers the C++ compiled into
+    # the .wasm (ZXing-C++ and the zxing-wasm bindings, Apache-2.0) and is kept by hand.
+    Library(
+        name="zxing-wasm",
+        version="3.1.6",
+        integrity="sha512-mU7UNuvl+hOT+nlSOQTMHZ2tM8lRMsbjDIp5IO/+HmBl/FOq77q0OSZPJ3cm42A9c1MKU6Uve67FiGdkhsrT9g==",
+        files={"dist/iife/reader/index.js": "zxing-reader.js", "dist/reader/zxing_reader.wasm": "zxing_reader.wasm",
+               "LICENSE": "LICENSE"},
+        used_for="the camera card reader's QR decoder where the browser has no BarcodeDetector "
+                 "(static/js/card-reader.js; jsQR only as the last fallback)",
     ),
 )
 

@@ -21,7 +21,7 @@ def plan_story(data_dir: Path, story: Story, now: datetime, store=None):
 
     settings = load_settings(Path(data_dir))
     store = store or Store(data_dir)
-    return plan_from_settings(settings, store.history(pregnancy_id(story.key)), now)
+    return plan_from_settings(settings, store.history(pregnancy_id(story.key)), now, store=store)
 
 
 def _matching(plan, prefix: str):

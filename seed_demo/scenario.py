@@ -14,6 +14,7 @@ own) and writes every facility's signed bundle to ``<data_dir>/demo-bundles/``.
 """
 from __future__ import annotations
 
+import json
 import math
 import shutil
 import tempfile
@@ -32,7 +33,7 @@ from seed_demo.sites import site as site_def
 from seed_demo.stories import STORIES, Story, When, stories_at
 
 __all__ = ["SITES", "FACILITY_SITES", "build_site", "plan_site", "config_text", "DemoError", "record_id",
-           "woman_id", "pregnancy_id"]
+           "woman_id", "pregnancy_id", "earlier_pregnancy_id", "earlier_record_id", "pregnancy_ids"]
 
 # Fixed namespace of every demo id (a random UUID chosen once for this demo).
 NAMESPACE = uuid.UUID("6b1f0c9e-3d5a-4e27-9c41-8f2a7d3b5e10")
@@ -59,6 +60,20 @@ def pregnancy_id(story_key: str) -> str:
 
 def record_id(story_key: str, step_index: int) -> str:
     return _uid(story_key, f"step-{step_index}")
+
+
+def earlier_pregnancy_id(story_key: str) -> str:
+    """The id of the story's earlier pregnancy (``Story.earlier``)."""
+    return _uid(story_key, "earlier-pregnancy")
+
+
+def earlier_record_id(story_key: str, step_index: int) -> str:
+    return _uid(story_key, f"earlier-step-{step_index}")
+
+
+def pregnancy_ids(story: Story) -> list[str]:
+    """Every pregnancy of the story's woman: the earlier one (if any), then the story's own."""
+    return ([earlier_pregnancy_id(story.key)] if story.earlier else []) + [pregnancy_id(story.key)]
 
 
 # ---- time ---------------------------------------------------------------------------------
@@ -111,10 +126,29 @@ class Planned:
 
 
 def _timeline(story: Story, clock: Clock) -> list[Planned]:
-    """Every store call of one story, in the order it happened."""
+    """Every store call of one story, in the order it happened (her earlier pregnancy first)."""
+    wid = woman_id(story.key)
+    parts = []
+    if story.earlier is not None:
+        e = story.earlier
+        parts.append(_pregnancy_timeline(story, clock, e.dating, e.steps, e.booked, earlier_pregnancy_id(story.key),
+                                         lambda i: earlier_record_id(story.key, i),
+                                         {"gravidity": e.gravidity, "parity": e.parity}))
+    parts.append(_pregnancy_timeline(story, clock, story.dating, story.steps, story.booked, pregnancy_id(story.key),
+                                     lambda i: record_id(story.key, i), dict(story.pregnancy_fields)))
+    first_booked = min(booked for booked, _ in parts)
+    out = [Planned(story.home, story, "create", "woman", wid, _woman_fields(story, clock), first_booked, "midwife")]
+    for _, ops in parts:
+        out += ops
+    return out
+
+
+def _pregnancy_timeline(story: Story, clock: Clock, dating, steps, booked: str, pid: str, rid_of,
+                        extra_fields: dict) -> tuple[datetime, list[Planned]]:
+    """(booked at, the store calls) of one pregnancy of the story's woman."""
     labels: dict[str, datetime] = {}
     ids: dict[str, str] = {}
-    ga_text, anchor = story.dating
+    ga_text, anchor = dating
     anchor_ga = parse_ga(ga_text)
 
     def resolve(when: When) -> datetime:
@@ -135,7 +169,7 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
     lmp = clock.local_date(resolve(anchor)) - timedelta(days=anchor_ga)
 
     times = []
-    for i, step in enumerate(story.steps):
+    for i, step in enumerate(steps):
         t = resolve(step.when)
         if t > clock.now:
             raise DemoError(f"story {story.key}: step {i} ({step.kind}) would be in the future "
@@ -143,39 +177,38 @@ def _timeline(story: Story, clock: Clock) -> list[Planned]:
         times.append(t)
         if step.label:
             labels[step.label] = t
-            ids[step.label] = record_id(story.key, i)
+            ids[step.label] = rid_of(i)
 
-    booked_at = clock.local(lmp + timedelta(days=parse_ga(story.booked)), 9)
+    booked_at = clock.local(lmp + timedelta(days=parse_ga(booked)), 9)
     if times:
         booked_at = min(booked_at, min(times) - timedelta(minutes=30))
     if booked_at > clock.now:
         booked_at = clock.now - timedelta(hours=1)
-    wid, pid = woman_id(story.key), pregnancy_id(story.key)
-
-    out = [Planned(story.home, story, "create", "woman", wid, _woman_fields(story, clock), booked_at, "midwife"),
-           Planned(story.home, story, "create", "pregnancy", pid,
-                   _pregnancy_fields(story, lmp, clock.local_date(booked_at)), booked_at + timedelta(minutes=2),
+    wid = woman_id(story.key)
+    fields = _pregnancy_fields(story, lmp, clock.local_date(booked_at))
+    fields.update(extra_fields)
+    out = [Planned(story.home, story, "create", "pregnancy", pid, fields, booked_at + timedelta(minutes=2),
                    "midwife", woman_id=wid)]
-    for i, (step, t) in enumerate(zip(story.steps, times, strict=False)):
+    for i, (step, t) in enumerate(zip(steps, times, strict=True)):
         where = step.site or story.home
         s = site_def(where)
         if step.kind == "status":
             out.append(Planned(where, story, "amend", "pregnancy", pid, dict(step.fields), t, step.by,
                                reason=_status_reason(step.fields.get("status"))))
             continue
-        fields = {}
+        values = {}
         for k, v in step.fields.items():
-            fields[k] = _fill(v, story, s, t, lmp, ids, clock)
-        fields = {k: v for k, v in fields.items() if v is not None}
+            values[k] = _fill(v, story, s, t, lmp, ids, clock)
+        values = {k: v for k, v in values.items() if v is not None}
         if step.kind == "dose":
             lot = s.lots.get(step.lot or "main")
             if lot is None:
                 raise DemoError(f"story {story.key}: {s.name} stocks no {step.lot!r} lot")
-            fields.update(product=lot.product, lot=lot.lot,
+            values.update(product=lot.product, lot=lot.lot,
                           lot_expiry=(clock.today + timedelta(days=lot.expires_in_days)).isoformat())
-        out.append(Planned(where, story, "create", step.kind, record_id(story.key, i), fields, t, step.by,
+        out.append(Planned(where, story, "create", step.kind, rid_of(i), values, t, step.by,
                            woman_id=wid, pregnancy_id=pid))
-    return out
+    return booked_at, out
 
 
 def _status_reason(status: str | None) -> str:
@@ -230,7 +263,6 @@ def _pregnancy_fields(story: Story, lmp: date, booked_on: date) -> dict:
          "parity": story.parity, "status": "ongoing"}
     if story.multiple > 1:
         f["multiple"] = story.multiple
-    f.update(story.pregnancy_fields)
     return f
 
 
@@ -314,18 +346,16 @@ def _toml_value(v: Any) -> str:
     return f'"{s}"'
 
 
-# The demo passwords are published (README, the demo command prints them), so their hashes
-# protect nothing: a cheap PBKDF2 keeps building a demo quick. Real accounts get werkzeug's
-# default (scrypt) from the commands that make them.
+# The demo passwords are published (README, the demo command prints them, the sign-in page
+# shows them), so their hashes protect nothing: a cheap PBKDF2 keeps building a demo quick,
+# and the first sign-in re-hashes it as Argon2id like any older hash.
 DEMO_HASH_METHOD = "pbkdf2:sha256:20000"
 # First line of every demo config.toml: `build_site(force=True)` deletes only folders marked so.
 DEMO_MARKER = "# Demo installation of the invented Selvara district (seed_demo). Not a real facility."
 
 
 def config_text(s: Site) -> str:
-    """config.toml of a demo site, with werkzeug password hashes of the demo passwords."""
-    from werkzeug.security import generate_password_hash
-
+    """config.toml of a demo site (its accounts are written by ``_write_accounts``)."""
     lines = [
         DEMO_MARKER,
         "[facility]",
@@ -355,13 +385,28 @@ def config_text(s: Site) -> str:
             lines.append(f"  {{ name = {_toml_value(name)}, vial_iu = {vial}, routes = {_toml_value(list(routes))} }},")
         lines.append("]")
         lines.append("")
-    lines += ["[backup]", "keep = 14", ""]
-    for a in s.staff:
-        lines += ["[[accounts]]", f"username = {_toml_value(a.username)}",
-                  f"display_name = {_toml_value(a.display_name)}", f"role = {_toml_value(a.role)}",
-                  f"# demo password: {a.password}",
-                  f"password_hash = {_toml_value(generate_password_hash(a.password, method=DEMO_HASH_METHOD))}", ""]
+    lines += ["[backup]", "keep = 14", "",
+              "# The demo sign-ins are in users.json (demo accounts: they sign in only beside the DEMO file).", ""]
     return "\n".join(lines)
+
+
+def _write_accounts(data_dir: Path, s: Site, clock: Clock) -> None:
+    """users.json with the site's demo accounts, and the DEMO marker that lets them sign in.
+
+    The marker holds the published sign-ins, so the sign-in page can show them."""
+    from werkzeug.security import generate_password_hash
+
+    from clinic.accounts.users import DEMO_MARKER as DEMO_FILE
+    from clinic.accounts.users import UserStore
+
+    marker = {"text": f"{s.name} of the invented {DISTRICT_NAME}: invented people and places only.",
+              "accounts": [[a.username, a.password, a.role] for a in s.staff]}
+    (data_dir / DEMO_FILE).write_text(json.dumps(marker, ensure_ascii=False, indent=1) + "\n", encoding="utf-8")
+    users = UserStore(data_dir)
+    for a in s.staff:
+        # Re-made as Argon2id at the first sign-in (users.UserStore.authenticate).
+        users.add(a.username, a.role, display_name=a.display_name, by="seed_demo", now=clock.now.timestamp(),
+                  demo=True, password_hash=generate_password_hash(a.password, method=DEMO_HASH_METHOD))
 
 
 # ---- keys and trust -----------------------------------------------------------------------
@@ -535,6 +580,7 @@ def build_site(data_dir, site: str = "clinic-a", now: datetime | None = None, fo
     clock = Clock(_aware_now(now), ZoneInfo(TIMEZONE))
     _prepare_dir(data_dir, force)
     _write_config(data_dir, s)
+    _write_accounts(data_dir, s, clock)
     fingerprint = _install_keys(data_dir, s, clock)
     summary: dict[str, Any] = {
         "site": s.key, "facility_id": s.facility_id, "facility_name": s.name, "kind": s.kind,

@@ -5,7 +5,9 @@ district (Selvara) and its facilities do not exist.
 
 Each ``Story`` is a woman with one pregnancy: where she booked (``home``), the pathway
 the care engine should put her on, a sentence saying what the demo shows with her, and
-her timeline (``steps``). Times are relative to the moment the demo is built (``now``),
+her timeline (``steps``); a story may give her an ``earlier`` pregnancy too (booked and
+ended at her home facility before this one, with its own dating and steps). Times are
+relative to the moment the demo is built (``now``),
 so something is always due: ``ga("28+2")`` is a gestational age on her own dating,
 ``ago(days=1)`` is relative to now, ``last_month(12)`` is the 12th of the previous
 calendar month at the facility, ``after("birth", hours=20)`` is relative to another
@@ -110,13 +112,19 @@ def dose(at: When, amount: float, indication: str, *, unit: str = "IU", lot: str
 
 
 def event(at: When, kind: str, label: str = "event", notes: str = "", ongoing: bool | None = None,
-          site: str | None = SITE_HOME) -> Step:
-    fields = {"event_kind": kind, "occurred_at": "@at", "ga_days": "@ga"}
+          site: str | None = SITE_HOME, **bleeding: bool) -> Step:
+    """A sensitising event; ``bleeding``: bleeding_heavy, bleeding_repeated, abdominal_pain."""
+    fields: dict[str, Any] = {"event_kind": kind, "occurred_at": "@at", "ga_days": "@ga"}
     if notes:
         fields["notes"] = notes
     if ongoing is not None:
         fields["ongoing"] = ongoing
+    fields.update(bleeding)
     return Step("event", at, fields, label=label, site=site)
+
+
+# Bleeding as the form records it when none of the three boxes is ticked.
+NOT_HEAVY = {"bleeding_heavy": False, "bleeding_repeated": False, "abdominal_pain": False}
 
 
 def rosette(at: When, result: str, covers: str, site: str | None = SITE_HOME) -> Step:
@@ -182,6 +190,18 @@ class Expect:
 
 
 @dataclass(frozen=True)
+class Earlier:
+    """An earlier pregnancy of the story's woman, at her home facility: its own dating (anchored
+    like the story's) and timeline. Its ``ga()`` times are on its own dating."""
+
+    dating: tuple[str, When]
+    steps: tuple[Step, ...]
+    booked: str = "11+2"
+    gravidity: int = 1
+    parity: int = 0
+
+
+@dataclass(frozen=True)
 class Story:
     key: str  # stable: the seed of every id of hers (uuid5), the same in every site and run
     name: str
@@ -199,12 +219,13 @@ class Story:
     village: str = ""
     expect_site: str | None = None  # default: the last site with a step of its own
     pregnancy_fields: Mapping[str, Any] = field(default_factory=dict)  # extra fields of her pregnancy record
+    earlier: Earlier | None = None  # an earlier pregnancy of hers (at her home facility)
 
     @property
     def sites(self) -> tuple[str, ...]:
         """Sites holding her records, in the order she was seen there."""
         out = [self.home]
-        for s in self.steps:
+        for s in self.steps + (self.earlier.steps if self.earlier else ()):
             if s.site and s.site not in out:
                 out.append(s.site)
         return tuple(out)
@@ -270,12 +291,12 @@ STORIES: tuple[Story, ...] = (
           Expect(PROPH, "negative", items={"routine-dose": ("missed", "overdue")}),
           village="Lower Tembe", age=30),
     Story("a-event-10w", "Priya Chelimo", "clinic-a", PROPH,
-          "Sensitising event at 10 weeks: light bleeding yesterday at 10+2 (threatened miscarriage); "
-          "under bsh-2014 anti-D is not needed before 12 weeks for this (compare b-event-10w)",
+          "Threatened miscarriage at 10 weeks: light bleeding yesterday at 10+2, not heavy, not repeated, no "
+          "pain; under bsh-2014 anti-D is not needed before 12 weeks for this (compare b-event-10w)",
           ("10+3", ago()), (booking_typing(ago(days=1, hours=1), "negative"),
                             screen(ago(days=1, hours=1), label="booking-screen"),
-                            event(ago(days=1, hours=3), "antepartum-haemorrhage",
-                                  notes="light bleeding, no pain; threatened miscarriage")),
+                            event(ago(days=1, hours=3), "threatened-miscarriage", notes="light bleeding, settled",
+                                  **NOT_HEAVY)),
           Expect(PROPH, "negative", items={"event-dose": ("not-needed",)}), booked="10+2", village="Ambeni", age=22,
           gravidity=1, parity=0),
     Story("a-event-30w", "Mercy Odhiambo-Vance", "clinic-a", PROPH,
@@ -350,6 +371,25 @@ STORIES: tuple[Story, ...] = (
           ("40+1", last_month(3, 3)), tuple(_neg_booking() + _routine("28+4") + birth(last_month(3, 3))),
           Expect(ENDED, items={"postpartum-dose": ("missed",)}), village="Kivuli Ridge", age=36,
           gravidity=5, parity=4),
+    Story("a-screen-positive", "Nasra Wekesa-Lund", "clinic-a", PROPH,
+          "THE UNANSWERED SCREEN: booked late at 20+1, RhD negative, antibody screen positive but no "
+          "antibody identified yet: an identification task (a week) and an alert for a clinician; "
+          "routine anti-D is still planned",
+          ("20+4", ago()), (booking_typing(ago(days=3, hours=1), "negative"),
+                            screen(ago(days=3), "positive", label="booking-screen")),
+          Expect(PROPH, "negative", items={"antibody-identification": ("due",), "routine-dose": ("not-yet-due",)},
+                 closes_ahead=("antibody-identification",), alerts=("antibody-unidentified",)),
+          booked="20+1", village="Sokoro", age=29, gravidity=3, parity=2),
+
+    Story("a-earlier-missed", "Beatrice Wanjala-Roos", "clinic-a", PROPH,
+          "A MISSED DOSE TRAVELS WITH HER: two years ago her baby was RhD positive and no anti-D was given "
+          "after the birth; booked again today at 10+4: an alert at booking asks for the antibody screen, "
+          "and her card says it",
+          ("10+4", ago()), (booking_typing(ago(hours=2), "negative"),),
+          Expect(PROPH, "negative", items={"booking-screen": ("due",)}, alerts=("earlier-dose-missed",)),
+          booked="10+4", village="Sokoro", age=29, gravidity=2, parity=1,
+          earlier=Earlier(("40+1", ago(days=730)), tuple(_neg_booking() + _routine("28+2")
+                                                          + birth(ga("40+1", 4), baby_abo="A")))),
 
     # ---------------- clinic-b: Rusoka Health Centre (acog-2017, 300 µg at 28 weeks) -------------
     _positive("b-pos-1", "Joyce Wafula", "clinic-b", "16+0", "Rusoka", abo="O", age=25),
@@ -380,12 +420,12 @@ STORIES: tuple[Story, ...] = (
           ("34+0", ago()), tuple(_neg_booking() + _routine("28+2", amount=300, unit="ug")),
           Expect(PROPH, "negative", items={"routine-dose": ("done",)}), village="Rusoka", age=27),
     Story("b-event-10w", "Consolata Mberi", "clinic-b", PROPH,
-          "Sensitising event at 10 weeks under acog-2017: light bleeding yesterday at 10+2; the profile "
+          "Threatened miscarriage at 10 weeks under acog-2017: light bleeding yesterday at 10+2; the profile "
           "gives anti-D, 50 µg (250 IU) as the clinic stocks that vial (compare a-event-10w)",
           ("10+3", ago()), (booking_typing(ago(days=1, hours=1), "negative"),
                             screen(ago(days=1, hours=1), label="booking-screen"),
-                            event(ago(days=1, hours=3), "antepartum-haemorrhage",
-                                  notes="light bleeding, no pain; threatened miscarriage")),
+                            event(ago(days=1, hours=3), "threatened-miscarriage", notes="light bleeding, settled",
+                                  **NOT_HEAVY)),
           Expect(PROPH, "negative", items={"event-dose": ("due",)}, doses={"event-dose": 250}), booked="10+2",
           village="Oloshi", age=23, gravidity=2, parity=0),
     Story("b-ended-14w", "Wairimu Hagen", "clinic-b", ENDED,
@@ -554,6 +594,15 @@ STORIES: tuple[Story, ...] = (
           Expect(PROPH, "negative", items={"event-dose": ("done",), "event-fmh-dose": ("due",)},
                  closes_ahead=("event-fmh-dose",), alerts=("fmh-large",), doses={"event-fmh-dose": 2000}),
           village="Selvara Town", age=27),
+    Story("h-pp-large-fmh", "Rehema Lindahl", "hospital", PROPH,
+          "THE FMH TOTAL: born 20 hours ago, baby RhD positive, Kleihauer 1 % (25 mL fetal red cells): "
+          "3125 IU in all, so the standard 500 IU plus 2625 IU more, not 3125 more",
+          ("39+6", ago(hours=20)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=20)) + [
+              kleihauer(after("birth", hours=2), 1.0, covers="birth")]),
+          Expect(PROPH, "negative", items={"postpartum-dose": ("due",), "postpartum-fmh-dose": ("due",)},
+                 closes_ahead=("postpartum-fmh-dose",), alerts=("fmh-large",),
+                 doses={"postpartum-dose": 500, "postpartum-fmh-dose": 2625}),
+          village="Selvara Town", age=31, gravidity=3, parity=2),
     Story("h-pp-done", "Margit Chepngeno", "hospital", PROPH,
           "Born at the hospital 40 hours ago; postpartum 500 IU given 10 hours after birth: done",
           ("39+3", ago(hours=40)), tuple(_neg_booking() + _routine("28+0") + birth(ago(hours=40)) + [

@@ -61,6 +61,18 @@ def write_config(data_dir: Path, password_hash: str, facility_id: str = FACILITY
     return path
 
 
+@pytest.fixture(autouse=True, scope="session")
+def _cheap_password_hashing():
+    """Argon2id with the smallest cost in tests: they sign in hundreds of times. The real cost
+    (clinic.accounts.passwords.Params defaults) is checked in tests/security."""
+    from clinic.accounts import passwords
+
+    real = passwords.PARAMS
+    passwords.PARAMS = passwords.Params(time_cost=1, memory_cost=8, parallelism=1)
+    yield
+    passwords.PARAMS = real
+
+
 @pytest.fixture
 def now() -> datetime:
     """A fixed, timezone-aware now (2026-03-16 09:30 UTC)."""

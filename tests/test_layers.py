@@ -7,7 +7,8 @@ lists the module that may.
     0  records               values (GA and UTC text), schema, the one validation layer
     1  care                  the care engine (pure)
     2  config, care_inputs,  installation settings; the engine's inputs built from them;
-       supply                anti-D supply forecasting (pure, reads plans)
+       supply, accounts      anti-D supply forecasting (pure, reads plans); staff accounts,
+                             roles and their permissions (config reads the roles)
     3  store, signing,       the record store; facility keys, trust list, COSE;
        printing              the one PDF path (WeasyPrint)
     4  card, reports         patient-held cards; district bundles and reports
@@ -32,7 +33,7 @@ ROOT = Path(__file__).resolve().parents[1]
 LAYERS: dict[str, int] = {
     "records": 0,
     "care": 1,
-    "config": 2, "care_inputs": 2, "supply": 2,
+    "config": 2, "care_inputs": 2, "supply": 2, "accounts": 2,
     "store": 3, "signing": 3, "printing": 3,
     "card": 4, "reports": 4,
     "web": 5, "cli": 5,
@@ -42,6 +43,7 @@ LAYER_NAMES = " < ".join(", ".join(u for u, r in LAYERS.items() if r == rank)
 # (importing package, imported peer): the only modules that may make that import.
 PEER_IMPORTS: dict[tuple[str, str], set[str]] = {
     ("cli", "web"): {"clinic.cli.web_cmds"},     # `rhledger serve` / `rhledger demo` start the web app
+    ("config", "accounts"): {"clinic.config"},   # the roles an older config.toml account may hold
 }
 # Project packages beside clinic/ that sit above it: the only modules of clinic that may import them.
 ABOVE_IMPORTS: dict[str, set[str]] = {

@@ -14,7 +14,12 @@ Rules:
    before any is written). A local copy with the same or a higher version is kept as it is
    (never overwritten by the card), so importing the same card twice, or an older issue
    after a newer one, changes nothing.
-4. Each record taken in carries ``origin = {via: "card", facility, issue}``, and the import
+4. A card's signature vouches only for the issuer's own records (``signer`` of
+   ``merge_foreign_many``): another facility's record on it that differs from the copy here
+   (a higher version, voided) is never taken in: outcome ``not-owner``, the owner's copy stays
+   unchanged, and an ``import-declined`` audit line keeps what the card carried, attributed
+   to the issuer. Another facility's record not known here is taken in as carried by the card.
+5. Each record taken in carries ``origin = {via: "card", facility, issue}``, and the import
    is logged in ``<data>/cards/imported.jsonl`` (pregnancy, issuer, issue, card code, counts).
 """
 from __future__ import annotations
@@ -30,6 +35,7 @@ from clinic.card.issue import CARDS_DIR, IMPORTED_FILE
 from clinic.records.schema import SCHEMA_VERSION
 from clinic.records.values import utc_text
 from clinic.signing.files import append_line
+from clinic.store.merge import vouched_by
 
 IMPORTER = "card-import"
 
@@ -55,7 +61,8 @@ class ImportResult:
     woman_id: str
     issuer: str
     issue: int
-    outcomes: dict[str, str] = field(default_factory=dict)  # record id -> created/updated/unchanged/kept-local
+    # record id -> created / updated / unchanged / kept-local / not-owner
+    outcomes: dict[str, str] = field(default_factory=dict)
     linked_to: str | None = None  # local woman the records were attached to
 
     @property
@@ -120,11 +127,16 @@ def import_reading(store, reading: Reading, *, data_dir: Path, by: str = IMPORTE
         if local is not None and local.get("version", 1) >= rec.get("version", 1):
             same = all(local.get(k) == v for k, v in rec.items()
                        if k not in ("created_by", "amended_by", "origin", "schema", "amendments", "woman_id"))
-            result.outcomes[rec["id"]] = "unchanged" if same else "kept-local"
-            continue
+            # The owner's own card replaces a copy another facility's card carried here.
+            owner_over_carried = (not same and rec.get("facility") == c.issuer_id == local["facility"]
+                                  and vouched_by(local) != local["facility"])
+            if not owner_over_carried:
+                result.outcomes[rec["id"]] = "unchanged" if same else "kept-local"
+                continue
         incoming.append(_foreign(rec, origin, attach_to))
     # One call: every record is validated before any is written, so a card never half-imports.
-    for rec, outcome in zip(incoming, store.merge_foreign_many(incoming, by=by, now=now), strict=True):
+    for rec, outcome in zip(incoming, store.merge_foreign_many(incoming, by=by, now=now,
+                                                                  signer=c.issuer_id), strict=True):
         result.outcomes[rec["id"]] = outcome
     append_line(Path(data_dir) / CARDS_DIR / IMPORTED_FILE, json.dumps({
         "pregnancy_id": preg["id"], "issuer": c.issuer_id, "issue": c.issue, "card_code": reading.code,

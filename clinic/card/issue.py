@@ -85,16 +85,31 @@ class IssuedCard:
     reused: bool  # the same issue as last time: nothing had changed
 
 
-def plan_dict(woman, pregnancy, entries, settings, now: datetime) -> dict:
-    """The care engine's plan for the card's "next actions", as this installation plans."""
+def plan_dict(woman, pregnancy, entries, settings, now: datetime, store=None) -> dict:
+    """The care engine's plan for the card's "next actions", as this installation plans (with
+    what her earlier pregnancies in ``store`` hand on)."""
     from clinic.care_inputs import plan_from_settings
 
-    return plan_from_settings(settings, (woman, pregnancy, entries), now).to_dict()
+    return plan_from_settings(settings, (woman, pregnancy, entries), now, store=store).to_dict()
+
+
+def current_card(data_dir: Path, store, settings, pregnancy_id: str, *,
+                 now: datetime | None = None) -> IssuedCard | None:
+    """The card last issued, remade, when the history has not changed since; None when a new
+    issue is needed (nothing is logged: showing a card never issues one)."""
+    return _card(data_dir, store, settings, pregnancy_id, by="", now=now, new_issue=False)
 
 
 def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = "cli",
                now: datetime | None = None) -> IssuedCard:
     """Make (or, when nothing changed, remake) the card of a pregnancy and log its issue."""
+    card = _card(data_dir, store, settings, pregnancy_id, by=by, now=now, new_issue=True)
+    assert card is not None  # a new issue is always made when one is needed
+    return card
+
+
+def _card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str, now: datetime | None,
+          new_issue: bool) -> IssuedCard | None:
     from clinic.store import NotFound
     now = now or datetime.now(timezone.utc)
     try:
@@ -115,6 +130,8 @@ def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = 
                  and int(last["issue"]) >= highest_issue(data_dir, pregnancy_id))
         if reuse:
             issue, issued_at = int(last["issue"]), last["issued_at"]
+        elif not new_issue:
+            return None
         else:
             issue, issued_at = highest_issue(data_dir, pregnancy_id) + 1, utc_text(now)
         card = make_card_text(woman, pregnancy, entries, key=key, issue=issue, issued_at=issued_at,
@@ -124,7 +141,7 @@ def issue_card(data_dir: Path, store, settings, pregnancy_id: str, *, by: str = 
                 "pregnancy_id": pregnancy_id, "issue": issue, "issued_at": issued_at, "card_code": card.code,
                 "sha256": card.payload_hash, "kid": key.kid.hex(), "history": hh, "entries": card.included,
                 "omitted": card.omitted, "qr_version": card.qr_version, "by": by}))
-    plan = plan_dict(woman, pregnancy, entries, settings, now)
+    plan = plan_dict(woman, pregnancy, entries, settings, now, store=store)
     view = build_view(woman, pregnancy, entries, plan=plan,
                       issuer={"name": settings.facility_name, "phone": settings.facility_phone,
                               "facility_id": settings.facility_id},

@@ -55,7 +55,8 @@ CARD_FIELDS: dict[str, tuple[str, ...]] = {
     "fetal_rhd": ("result", "sampled_on", "ga_days", "lab"),
     "screen": ("sampled_at", "ga_days", "result", "antibodies", "antibody_other", "titre", "titre_antibody",
                "anti_d_iu_ml", "anti_d_origin", "lab"),
-    "event": ("event_kind", "occurred_at", "ga_days", "ongoing", "notes"),
+    "event": ("event_kind", "occurred_at", "ga_days", "ongoing", "notes", "bleeding_heavy", "bleeding_repeated",
+              "abdominal_pain"),
     "fmh": ("method", "sampled_at", "rosette_result", "fetal_cells", "cells_counted", "fetal_cell_percent",
             "maternal_volume_ml", "covers_id"),
     "dose": ("given_at", "amount", "unit", "route", "product", "lot", "lot_expiry", "indication", "given_by",
@@ -68,6 +69,7 @@ CARD_FIELDS: dict[str, tuple[str, ...]] = {
 }
 OMITTED_FIELDS = {
     ("woman", "address"): "directions to her home are not needed elsewhere and are long",
+    ("dose", "override_reason"): "the clinician's reason stays in the facility's record; the card carries the dose",
 }
 
 # Choice values in code order (frozen; a value not listed travels as text).
@@ -82,7 +84,7 @@ CHOICES: dict[str, tuple[str, ...]] = {
     "origin": ("passive", "immune", "undetermined"),
     "event": ("miscarriage", "termination", "ectopic", "molar-pregnancy", "antepartum-haemorrhage",
               "abdominal-trauma", "external-cephalic-version", "amniocentesis", "chorionic-villus-sampling",
-              "fetal-blood-sampling", "intrauterine-death", "other"),
+              "fetal-blood-sampling", "intrauterine-death", "other", "threatened-miscarriage"),
     "unit": ("ug", "IU"),
     "route": ("IM", "IV"),
     "indication": ("routine-antenatal", "sensitising-event", "postpartum", "large-fmh"),

@@ -10,7 +10,7 @@ from datetime import date, datetime, timezone, tzinfo
 from typing import Any
 
 from clinic.care import CAUTION
-from clinic.care.calc import iu_to_ug, ug_to_iu
+from clinic.care.calc import bleeding_words, iu_to_ug, ug_to_iu
 from clinic.care.codes import OPEN_STATES
 from clinic.care.dating import ga_on
 from clinic.records.choices import (
@@ -90,6 +90,46 @@ def _latest(entries, kind):
     return of[-1] if of else None
 
 
+def _carried(plan: dict, tz: tzinfo) -> tuple[list[dict], list[dict]]:
+    """A missed dose of this pregnancy, with what follows, and what earlier pregnancies hand on
+    (the plan's ``missed_doses`` and ``earlier``), as lines the card and the note print."""
+    missed = []
+    for m in plan.get("missed_doses") or []:
+        when = show_date(local_date(m.get("occurred_at"), tz))
+        if m.get("screen_id"):
+            then = "The follow-up antibody screen is taken (see the screens); tell the booking midwife next time."
+        else:
+            then = (f"Antibody screen from {show_date(m.get('screen_from'))} and at the booking of her next "
+                    f"pregnancy.")
+        missed.append({"title": m["title"], "when": when, "line": f"{m['title']} ({when}) was not given. {then}",
+                       "follow_up": m.get("follow_up", "")})
+    earlier = []
+    for e in plan.get("earlier") or []:
+        which = ", ".join(x for x in (f"booked {show_date(e.get('booked_on'))}" if e.get("booked_on") else "",
+                                      f"birth {show_date(e.get('ended_on'))}" if e.get("ended_on") else "") if x)
+        lines = []
+        if e.get("missed"):
+            lines.append("anti-D missed: " + "; ".join(e["missed"]) + ". Antibody screen at this booking.")
+        if e.get("antibodies"):
+            lines.append("antibody found: " + "; ".join(e["antibodies"]) + ". Screen now, with a titre.")
+        if e.get("problem"):
+            lines.append("its record could not be read by the care engine: check it.")
+        if lines:
+            earlier.append({"which": f"Earlier pregnancy ({which})" if which else "Earlier pregnancy",
+                            "lines": lines})
+    return missed, earlier
+
+
+def _carried_line(plan: dict) -> str:
+    """One line for the front of the card when something travels with her (the back says what)."""
+    earlier = plan.get("earlier") or []
+    if any(e.get("antibodies") for e in earlier):
+        return "Antibody in an earlier pregnancy \u2013 see the back"
+    if plan.get("missed_doses") or any(e.get("missed") for e in earlier):
+        return "Anti-D missed \u2013 see the back"
+    return ""
+
+
 def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict | None = None,
                issuer: dict, issue: int, issued_at: str, card_code: str = "", qr_text: str = "",
                qr_version: int | None = None, omitted: int = 0, tz: tzinfo = timezone.utc,
@@ -121,7 +161,8 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                for s in sorted((e for e in live if e["kind"] == "screen"), key=lambda r: r["sampled_at"])]
     events = [{"date": show_time(e["occurred_at"], tz), "ga": _ga_text(e, local_date(e["occurred_at"], tz), edd),
                "what": event_words(e["event_kind"]).capitalize(),
-               "ongoing": bool(e.get("ongoing")), "notes": e.get("notes", "")}
+               "ongoing": bool(e.get("ongoing")), "notes": e.get("notes", ""),
+               "details": ", ".join(x for x in (bleeding_words(e), "continuing" if e.get("ongoing") else "") if x)}
               for e in sorted((x for x in live if x["kind"] == "event"), key=lambda r: r["occurred_at"])]
     doses = []
     for d in sorted((x for x in live if x["kind"] == "dose"), key=lambda r: r["given_at"]):
@@ -147,6 +188,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
                         "state": it["state"], "state_words": STATE_WORDS[it["state"]], "dose": dose,
                         "sort": it.get("due") or "9999"})
     actions.sort(key=lambda a: a["sort"])
+    missed, earlier = _carried(plan or {}, tz)
     referrals = [{"date": show_date(r["referred_on"]), "to": r["to_facility"], "reason": r["reason"],
                   "question": r.get("question", "")}
                  for r in sorted((x for x in live if x["kind"] == "referral"), key=lambda r: r["referred_on"])]
@@ -176,7 +218,7 @@ def build_view(woman: dict, pregnancy: dict, entries: list[dict], *, plan: dict 
         "sensitised": is_sensitised(live),
         "sensitised_line": SENSITISED_LINE,
         "screens": screens, "events": events, "doses": doses, "births": births, "actions": actions,
-        "referrals": referrals,
+        "missed": missed, "earlier": earlier, "referrals": referrals, "carried_line": _carried_line(plan or {}),
         "issuer": {"name": issuer.get("name", ""), "phone": issuer.get("phone", ""),
                    "facility_id": issuer.get("facility_id", "")},
         "issue": issue, "issued": show_date(local_date(issued_at, tz)), "issued_at": issued_at,

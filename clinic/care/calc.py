@@ -9,6 +9,8 @@ import math
 from dataclasses import asdict, dataclass, field
 
 from clinic.care.errors import CareInputError, require_range
+from clinic.care.formatting import format_against, round_against, threshold_text
+from clinic.records.choices import event_words
 from clinic.records.schema import EVENT_KINDS, IU_PER_UG
 from clinic.records.values import format_ga
 
@@ -28,6 +30,11 @@ def ug_to_iu(ug: float) -> float:
 def _num(x: float) -> float:
     """Round a displayed figure to 4 significant decimals, keeping it a number."""
     return float(round(x, 4))
+
+
+def _num_against(x: float, thresholds: tuple[float, ...]) -> float:
+    """As ``_num``, with more decimals where 4 would put the figure on or across a threshold."""
+    return float(round_against(x, thresholds, 4))
 
 
 # ---- MCA peak systolic velocity (Mari et al., NEJM 2000;342:9-14) -------------------------
@@ -72,8 +79,10 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
     sev = mca_severity(mom, profile)
     s = profile.get("surveillance")
     refer = mom >= s["mca_refer_mom"] - _EPS
+    cuts = (s["mca_mom_mild"], s["mca_mom_moderate"], s["mca_mom_severe"], s["mca_refer_mom"])
+    text = format_against(mom, cuts)
     if refer:
-        step = (f"MCA-PSV {mom:.2f} MoM is at or above {s['mca_refer_mom']:.2f} MoM: suggest referral for "
+        step = (f"MCA-PSV {text} MoM is at or above {threshold_text(s['mca_refer_mom'])} MoM: suggest referral for "
                 f"fetal blood sampling and possible intrauterine transfusion (for a specialist to decide)")
     elif sev == "mild":
         step = "MCA-PSV in the mild range: suggest repeating the Doppler within 1 week (for a specialist to decide)"
@@ -82,7 +91,7 @@ def mca_result(psv_cm_s, ga_days, profile) -> dict:
                 "(for a specialist to decide)")
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "psv_cm_s": _num(float(psv_cm_s)),
-        "median_cm_s": _num(med), "mom": _num(mom), "severity": sev,
+        "median_cm_s": _num(med), "mom": _num_against(mom, cuts), "mom_text": text, "severity": sev,
         "threshold_mild_cm_s": _num(med * s["mca_mom_mild"]),
         "threshold_moderate_cm_s": _num(med * s["mca_mom_moderate"]),
         "threshold_severe_cm_s": _num(med * s["mca_mom_severe"]),
@@ -138,9 +147,12 @@ def fetal_hb_severity(mom: float, profile) -> str:
 def fetal_hb_result(hb_g_dl, ga_days, profile) -> dict:
     med = fetal_hb_median(ga_days)
     mom = fetal_hb_mom(hb_g_dl, ga_days)
+    s = profile.get("surveillance")
+    cuts = (s["hb_mom_mild"], s["hb_mom_moderate"], s["hb_mom_severe"])
     return {
         "ga_days": int(ga_days), "ga": format_ga(int(ga_days)), "hb_g_dl": _num(float(hb_g_dl)),
-        "median_g_dl": _num(med), "mom": _num(mom), "severity": fetal_hb_severity(mom, profile),
+        "median_g_dl": _num(med), "mom": _num_against(mom, cuts), "mom_text": format_against(mom, cuts),
+        "severity": fetal_hb_severity(mom, profile),
         "source": "Mari G et al., NEJM 2000;342:9-14, reference median fetal Hb by week of gestation; "
                   "thresholds 0.84/0.65/0.55 MoM from profile " + profile.id,
     }
@@ -204,7 +216,10 @@ def fmh_dose_iu(whole_blood_ml: float, red_cells_ml: float, profile, route: str 
         n = whole_blood_ml / per
         vials = int(math.floor(n + 0.5 + _EPS)) + 1
         dose = max(fm["min_dose_iu"], vials * fm["vial_dose_iu"])
-        how = (f"{whole_blood_ml:.1f} mL / {per:g} mL per {fm['vial_dose_iu'] // 5} µg = {n:.2f}; round "
+        # the rounding boundary is the half vial: 0.4999 must not read "0.50" and then round down
+        half = math.floor(n + _EPS) + 0.5
+        how = (f"{format_against(whole_blood_ml, half * per, 1, note=False)} mL / {per:g} mL per "
+               f"{fm['vial_dose_iu'] // 5} µg = {format_against(n, half)}; round "
                f"(.5 up) and add one: {vials} x {fm['vial_dose_iu'] // 5} µg")
         return int(dose), how
     rate = fm["iu_per_ml_red_cells_im"] if route == "IM" else fm["iu_per_ml_red_cells_iv"]
@@ -309,6 +324,9 @@ class EventDose:
     repeat_every_days: int | None = None
     repeat_dose_iu: int | None = None
     notes: list[str] = field(default_factory=list)
+    # For a conditional event (band conditional_kinds): True when the bleeding is heavy, repeated
+    # or with abdominal pain, False when recorded as none of them, None when not (all) recorded.
+    condition_met: bool | None = None
 
     @property
     def dose_ug(self) -> float | None:
@@ -320,8 +338,41 @@ class EventDose:
         return d
 
 
-def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = False) -> EventDose:
-    """Anti-D for one sensitising event, by GA band and kind (profile ``events.bands``)."""
+# The facts that make a conditional event (bleeding early in pregnancy) need anti-D, in the
+# words of BSH 2014 (Qureshi et al.): "repeated, heavy or associated with abdominal pain".
+BLEEDING_FACTS = (("bleeding_heavy", "heavy"), ("bleeding_repeated", "repeated"),
+                  ("abdominal_pain", "with abdominal pain"))
+BLEEDING_CONDITION = "heavy, repeated or with abdominal pain"
+
+
+def bleeding_condition(facts: dict) -> bool | None:
+    """True when any of the facts is true, False when all are recorded false, else None."""
+    values = [facts.get(name) for name, _ in BLEEDING_FACTS]
+    if any(v is True for v in values):
+        return True
+    if all(v is False for v in values):
+        return False
+    return None
+
+
+def bleeding_words(facts: dict) -> str:
+    """The recorded facts in words: "heavy, with abdominal pain"; "" when none is true."""
+    return ", ".join(words for name, words in BLEEDING_FACTS if facts.get(name) is True)
+
+
+def unrecorded_bleeding_facts(facts: dict) -> list[str]:
+    """The facts not recorded (neither yes nor no), in words."""
+    return [words for name, words in BLEEDING_FACTS if facts.get(name) is None]
+
+
+def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = False,
+               bleeding_heavy: bool | None = None, bleeding_repeated: bool | None = None,
+               abdominal_pain: bool | None = None) -> EventDose:
+    """Anti-D for one sensitising event, by GA band and kind (profile ``events.bands``).
+
+    A kind the band lists in ``conditional_kinds`` (bleeding early in pregnancy) needs anti-D
+    only when the bleeding is heavy, repeated or with abdominal pain: given as the three facts
+    (None = not recorded). With none of them recorded the dose is proposed on that condition."""
     if kind not in EVENT_KINDS:
         raise CareInputError("kind", f"{kind!r} is not one of: {', '.join(EVENT_KINDS)}")
     ga = require_range("ga_days", ga_days, 0, 44 * 7, unit="days")
@@ -334,16 +385,28 @@ def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = Fals
     hours, late = ev["deadline_hours"], ev["late_window_days"]
     fmh = ga >= profile.ga("events.fmh_test_from_ga") and band.covers(band.fmh_test_kinds, kind)
     band_text = f"{format_ga(band.from_ga_days)} to {format_ga(band.to_ga_days)}"
+    before = f"before {format_ga(band.to_ga_days + 1)}"
+    what = f"{event_words(kind)} at {format_ga(ga)}"
     if band.covers(band.not_needed_kinds, kind):
-        return EventDose(False, None, False, hours, late,
-                         f"{kind} at {format_ga(ga)}: the profile forgoes anti-D for this event in {band_text}", src)
+        reason = f"{what}: the profile forgoes anti-D for this event in {band_text}"
+        if ev["forgone_shared_decision"]:
+            reason += "; it may still be offered after a shared decision with the woman"
+        return EventDose(False, None, False, hours, late, reason, src)
     conditional = kind in band.conditional_kinds
     if not conditional and not band.covers(band.kinds, kind):
         return EventDose(False, None, False, hours, late,
-                         f"{kind} at {format_ga(ga)}: not among the events needing anti-D in {band_text} "
+                         f"{what}: not among the events needing anti-D in {band_text} "
                          f"(listed: {', '.join(band.kinds)}"
-                         + (f"; {', '.join(band.conditional_kinds)} only if repeated, heavy or with abdominal pain"
+                         + (f"; {', '.join(band.conditional_kinds)} only if {BLEEDING_CONDITION}"
                             if band.conditional_kinds else "") + ")", src)
+    facts = {"bleeding_heavy": bleeding_heavy, "bleeding_repeated": bleeding_repeated,
+             "abdominal_pain": abdominal_pain}
+    met = bleeding_condition(facts) if conditional else None
+    if conditional and met is False:
+        return EventDose(False, None, False, hours, late,
+                         f"{what}, bleeding neither heavy nor repeated and without abdominal pain: anti-D not "
+                         f"needed {before} (only for bleeding that is {BLEEDING_CONDITION})", src,
+                         conditional=True, condition_met=False)
     dose = band.dose_iu
     notes = []
     if band.reduced_dose_if_stocked:
@@ -358,14 +421,16 @@ def event_dose(kind: str, ga_days, profile, *, products=(), ongoing: bool = Fals
         rep = ev["repeat_every_days"]
         notes.append(f"ongoing bleeding: repeat at least {ev['repeat_dose_iu']} IU every "
                      f"{rep // 7} weeks, with an FMH test")
-    reason = f"{kind} at {format_ga(ga)}: {dose} IU ({iu_to_ug(dose):g} µg) within {hours:g} hours"
-    if conditional:
-        reason += (" if the bleeding is repeated, heavy or with abdominal pain; "
-                   "otherwise not needed before 12 weeks")
+    reason = f"{what}: {dose} IU ({iu_to_ug(dose):g} µg) within {hours:g} hours"
+    if met:
+        reason = (f"{what}, bleeding {bleeding_words(facts)}: {dose} IU ({iu_to_ug(dose):g} µg) within "
+                  f"{hours:g} hours ({before} anti-D is for bleeding that is {BLEEDING_CONDITION})")
+    elif conditional:
+        reason += f" if the bleeding is {BLEEDING_CONDITION}; otherwise not needed {before}"
     if fmh:
         reason += "; take an FMH test sample (before the dose where possible) to check whether more is needed"
     return EventDose(True, dose, fmh, hours, late, reason, src, conditional, rep,
-                     ev["repeat_dose_iu"] if rep else None, notes)
+                     ev["repeat_dose_iu"] if rep else None, notes, met)
 
 
 # ---- fetal weight and intrauterine transfusion volume -----------------------------------

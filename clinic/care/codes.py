@@ -39,6 +39,8 @@ class ItemCode:
     PARTNER_TYPING: Final = "partner-typing"
     FETAL_RHD_TEST: Final = "fetal-rhd-test"
     PRE_DOSE_SCREEN: Final = "pre-dose-screen"
+    ANTIBODY_IDENTIFICATION: Final = "antibody-identification"  # base: antibody-identification:<screen id>
+    ANTI_D_QUANTITATION: Final = "anti-d-quantitation"          # base: anti-d-quantitation:<screen id>
     ROUTINE_DOSE: Final = "routine-dose"            # base: routine-dose-<number>
     EVENT_DOSE: Final = "event-dose"                # base: event-dose:<event id>
     EVENT_FMH: Final = "event-fmh"                  # base: event-fmh:<event id> (the FMH test)
@@ -74,6 +76,8 @@ ITEMS: Final[dict[str, ItemSpec]] = {s.base: s for s in (
     ItemSpec(_I.PARTNER_TYPING, _C.TYPING, "", "partner_typing"),
     ItemSpec(_I.FETAL_RHD_TEST, _C.TYPING, "", "fetal_rhd"),
     ItemSpec(_I.PRE_DOSE_SCREEN, _C.SCREEN, "", "screen"),
+    ItemSpec(_I.ANTIBODY_IDENTIFICATION, _C.SCREEN, "record", "screen"),
+    ItemSpec(_I.ANTI_D_QUANTITATION, _C.SCREEN, "record", "screen"),
     ItemSpec(_I.ROUTINE_DOSE, _C.ROUTINE, "number", "dose"),
     ItemSpec(_I.EVENT_DOSE, _C.EVENT, "record", "dose"),
     ItemSpec(_I.EVENT_FMH, _C.EVENT, "record", "fmh"),
@@ -112,6 +116,14 @@ def event_fmh_dose_code(event_id: str) -> str:
 
 def event_repeat_code(event_id: str) -> str:
     return f"{ItemCode.EVENT_REPEAT}:{event_id}"
+
+
+def antibody_identification_code(screen_id: str) -> str:
+    return f"{ItemCode.ANTIBODY_IDENTIFICATION}:{screen_id}"
+
+
+def anti_d_quantitation_code(screen_id: str) -> str:
+    return f"{ItemCode.ANTI_D_QUANTITATION}:{screen_id}"
 
 
 def parse_item_code(code: str) -> tuple[str, str | None]:
@@ -167,6 +179,8 @@ class AlertCode:
     ANTI_D_ORIGIN_CHECK: Final = "anti-d-origin-check"
     ANTI_D_PASSIVE: Final = "anti-d-passive"
     ANTI_D_UNDETERMINED: Final = "anti-d-undetermined"
+    ANTIBODY_UNIDENTIFIED: Final = "antibody-unidentified"   # a positive screen without a known antibody
+    ANTIBODY_NOT_SIGNIFICANT: Final = "antibody-not-significant"
     # doses as recorded
     DUPLICATE_DOSE: Final = "duplicate-dose"
     LOT_EXPIRED: Final = "lot-expired"
@@ -202,6 +216,12 @@ class AlertCode:
     MCA_PSV: Final = "mca-psv"
     FETAL_HB: Final = "fetal-hb"
     NEONATAL_FOLLOW_UP: Final = "neonatal-follow-up"
+    # what an earlier pregnancy hands on (plan_pregnancy's earlier=)
+    EARLIER_DOSE_MISSED: Final = "earlier-dose-missed"        # record_ids: the earlier pregnancy, this one's screen
+    EARLIER_ANTIBODY: Final = "earlier-antibody"
+    EARLIER_PREGNANCY_UNREADABLE: Final = "earlier-pregnancy-unreadable"
+    # the clock: entries dated after now (kept and counted; this computer's clock may be behind)
+    CLOCK_BEHIND: Final = "clock-behind"
     # not the engine's: the Today page, when a pregnancy's plan cannot be worked out
     PLAN_FAILED: Final = "plan-failed"
 
@@ -211,6 +231,15 @@ ALERT_CODES: Final = frozenset(v for k, v in vars(AlertCode).items() if k.isuppe
 # PlanItem.state, Alert.severity and Plan.pathway.
 STATES: Final = ("not-yet-due", "due", "overdue", "done", "not-needed", "missed")
 OPEN_STATES: Final = ("not-yet-due", "due", "overdue")   # something still to do
+
+# The reason of an item that was planned but closed because the choice it informs was made or
+# has passed (a ``not-needed`` item that starts so): not missed, yet once asked for.
+NO_LONGER_NEEDED: Final = "no longer needed"
+
+
+def lapsed(state: str | None, reason: str | None) -> bool:
+    """Was this item planned and then closed as no longer needed (its decision gone)?"""
+    return state == "not-needed" and (reason or "").startswith(NO_LONGER_NEEDED)
 SEVERITIES: Final = ("danger", "warning", "info")
 PATHWAYS: Final = ("prophylaxis", "not-needed", "surveillance", "retest", "untyped", "ended")
 PATHWAY_WORDS: Final = {"prophylaxis": "anti-D prophylaxis", "not-needed": "anti-D not needed",

@@ -1,4 +1,5 @@
-"""What a plan is made of: Product and CareContext (facility facts), PlanItem, Alert, Plan."""
+"""What a plan is made of: Product and CareContext (facility facts), PlanItem, Alert, MissedDose,
+EarlierPregnancy (what an earlier pregnancy hands on to the next), Plan."""
 from __future__ import annotations
 
 from dataclasses import dataclass, field
@@ -9,7 +10,8 @@ from clinic.care.codes import CATEGORIES, PATHWAYS, SEVERITIES, STATES
 from clinic.records.schema import IU_PER_UG
 from clinic.records.values import utc_text
 
-__all__ = ["CATEGORIES", "PATHWAYS", "SEVERITIES", "STATES", "Alert", "CareContext", "Plan", "PlanItem"]
+__all__ = ["CATEGORIES", "PATHWAYS", "SEVERITIES", "STATES", "Alert", "CareContext", "EarlierPregnancy", "MissedDose",
+           "Plan", "PlanItem"]
 
 
 @dataclass(frozen=True)
@@ -91,6 +93,45 @@ class Alert:
 
 
 @dataclass
+class MissedDose:
+    """An anti-D dose after a birth or an event that was not given by the end of its late
+    window, and what follows from it (a follow-up antibody screen, and the next booking)."""
+
+    code: str                    # the plan item: postpartum-dose, event-dose:<event id>
+    title: str
+    related_id: str | None       # the birth or event record
+    occurred_at: datetime        # the birth or the event
+    missed_at: datetime          # when the late window closed
+    screen_from: date            # local date from which the follow-up antibody screen is due
+    follow_up: str               # what follows, in words
+    source: str
+    screen_id: str | None = None  # the follow-up screen, once taken
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"code": self.code, "title": self.title, "related_id": self.related_id,
+                "occurred_at": _dt(self.occurred_at), "missed_at": _dt(self.missed_at),
+                "screen_from": _dt(self.screen_from), "follow_up": self.follow_up, "source": self.source,
+                "screen_id": self.screen_id}
+
+
+@dataclass(frozen=True)
+class EarlierPregnancy:
+    """What an earlier pregnancy of the same woman hands on to a later one: ``plan_pregnancy``'s
+    ``earlier=`` input, made by ``clinic.care.planning.carried.summarise_earlier``."""
+
+    pregnancy_id: str
+    booked_on: str | None = None
+    ended_on: str | None = None             # local date of the birth, when one is recorded
+    missed: tuple[str, ...] = ()            # each missed dose, in words
+    antibodies: tuple[str, ...] = ()        # antibodies found (not passive anti-D), in words
+    problem: str | None = None              # its plan could not be worked out: why
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"pregnancy_id": self.pregnancy_id, "booked_on": self.booked_on, "ended_on": self.ended_on,
+                "missed": list(self.missed), "antibodies": list(self.antibodies), "problem": self.problem}
+
+
+@dataclass
 class Plan:
     profile_id: str
     profile_version: str
@@ -104,6 +145,8 @@ class Plan:
     alerts: list[Alert]
     caution: str
     antibodies: list[dict[str, Any]] = field(default_factory=list)
+    missed_doses: list[MissedDose] = field(default_factory=list)
+    earlier: list[EarlierPregnancy] = field(default_factory=list)
 
     def item(self, code: str) -> PlanItem | None:
         for it in self.items:
@@ -121,5 +164,6 @@ class Plan:
             "pathway": self.pathway, "fetal_rhd_probability": self.fetal_rhd_probability,
             "fetal_rhd": dict(self.fetal_rhd), "antibodies": [dict(a) for a in self.antibodies],
             "items": [i.to_dict() for i in self.items], "alerts": [a.to_dict() for a in self.alerts],
-            "caution": self.caution,
+            "caution": self.caution, "missed_doses": [m.to_dict() for m in self.missed_doses],
+            "earlier": [e.to_dict() for e in self.earlier],
         }

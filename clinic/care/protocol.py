@@ -15,6 +15,7 @@ from dataclasses import dataclass
 from importlib import resources
 from typing import Any, Mapping
 
+from clinic.care.codes import ITEMS
 from clinic.care.errors import ProfileError
 from clinic.records.schema import EVENT_KINDS, GA_MAX_DAYS
 from clinic.records.values import GAFormatError, format_ga, parse_ga
@@ -37,13 +38,14 @@ SPEC: dict[str, Any] = {
     "pre_dose_screen.source": "str", "pre_dose_screen.required": "bool", "pre_dose_screen.opens_ga": "ga",
     "routine.source": "str", "routine.regimen": "str", "routine.targeted_prophylaxis": "bool",
     "routine.partner_negative_may_decline": "bool", "routine.partner_negative_skips_routine": "bool",
+    "routine.targeted_shared_decision": "bool",
     "partner_typing.source": "str", "partner_typing.offered": "bool", "partner_typing.closes_ga": "ga",
     "fetal_rhd.source": "str", "fetal_rhd.opens_ga": "ga", "fetal_rhd.closes_ga": "ga",
     "fetal_rhd.late_until_ga": "ga",
     "events.source": "str", "events.deadline_hours": "hours", "events.late_window_days": "days",
     "events.after_routine_dose_needs_own_dose": "bool", "events.repeat_for_ongoing_bleeding": "bool",
     "events.repeat_from_ga": "ga", "events.repeat_every_days": "days", "events.repeat_dose_iu": "dose",
-    "events.fmh_test_from_ga": "ga", "events.bands": [_BAND],
+    "events.fmh_test_from_ga": "ga", "events.forgone_shared_decision": "bool", "events.bands": [_BAND],
     "postpartum.source": "str", "postpartum.dose_iu": "dose", "postpartum.deadline_hours": "hours",
     "postpartum.late_window_days": "days", "postpartum.fmh_test_required": "bool",
     "fmh.source": "str", "fmh.rule": ("vials-per-30ml", "iu-per-ml"),
@@ -52,7 +54,8 @@ SPEC: dict[str, Any] = {
     "fmh.iu_per_ml_red_cells_iv": "num0", "fmh.min_dose_iu": "dose", "fmh.default_vial_iu": "dose",
     "fmh.max_im_iu_at_once": "dose",
     "antibody.source": "str", "antibody.passive_window_days": "days", "antibody.passive_max_titre": "titre",
-    "antibody.passive_max_iu_ml": "pos",
+    "antibody.passive_max_iu_ml": "pos", "antibody.clinically_significant": "strs",
+    "antibody.not_clinically_significant": "strs", "antibody.identify_within_days": "days",
     "surveillance.source": "str", "surveillance.critical_titre": "titres", "surveillance.use_quantitation": "bool",
     "surveillance.quantitation": "quant", "surveillance.significant_rise_dilutions": "days",
     "surveillance.titre_interval_days_early": "days", "surveillance.interval_change_ga": "ga",
@@ -62,7 +65,15 @@ SPEC: dict[str, Any] = {
     "surveillance.mca_refer_mom": "pos", "surveillance.hb_mom_mild": "pos",
     "surveillance.hb_mom_moderate": "pos", "surveillance.hb_mom_severe": "pos",
     "surveillance.delivery_text": "str",
+    "decisions.source": "str",
+    "missed_dose.source": "str", "missed_dose.follow_up_screen_after_days": "days",
 }
+# The decisions table names every plan item (codes.ITEMS): the items whose choice it informs
+# (``serves``), whether it exists only for that choice (``only``) and that choice in words.
+for _base in ITEMS:
+    SPEC[f"decisions.{_base}.serves"] = "items"
+    SPEC[f"decisions.{_base}.only"] = "bool"
+    SPEC[f"decisions.{_base}.decision"] = "str"
 
 
 @dataclass(frozen=True)
@@ -296,6 +307,9 @@ def _check_value(path: str, kind: Any, v: Any, pid: str) -> None:
     elif kind == "titre":
         if not isinstance(v, int) or isinstance(v, bool) or v < 1 or v & (v - 1):
             raise bad("must be a titre 1, 2, 4, 8 ... 4096 (the N of 1:N)")
+    elif kind == "items":
+        if not isinstance(v, list) or any(x not in ITEMS for x in v):
+            raise bad(f"must be a list of plan item codes: {', '.join(ITEMS)}")
     elif kind == "kinds":
         if not isinstance(v, list) or any(k != "*" and k not in EVENT_KINDS for k in v):
             raise bad(f"must be a list of event kinds (or [\"*\"] for all): {', '.join(EVENT_KINDS)}")
@@ -364,6 +378,18 @@ def _validate(data: dict[str, Any]) -> None:
     if expect <= GA_MAX_DAYS:
         raise ProfileError(f"profile {pid}: events.bands end at {format_ga(expect - 1)}; they must reach "
                            f"{format_ga(GA_MAX_DAYS)}")
+    extra = set(data["decisions"]) - set(ITEMS) - {"source"}
+    if extra:
+        raise ProfileError(f"profile {pid}: decisions names unknown plan items {', '.join(sorted(extra))}; "
+                           f"allowed: {', '.join(ITEMS)}")
+    for base, entry in data["decisions"].items():
+        if base != "source" and entry["only"] and not entry["serves"]:
+            raise ProfileError(f"profile {pid}: decisions.{base}: only = true needs the items it serves")
+    ab = data["antibody"]
+    both = set(ab["clinically_significant"]) & set(ab["not_clinically_significant"])
+    if both:
+        raise ProfileError(f"profile {pid}: antibody: {', '.join(sorted(both))} cannot be both clinically "
+                           f"significant and not")
     s = data["surveillance"]
     if not s["mca_mom_mild"] <= s["mca_mom_moderate"] <= s["mca_mom_severe"]:
         raise ProfileError(f"profile {pid}: surveillance MCA thresholds must rise mild <= moderate <= severe")

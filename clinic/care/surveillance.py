@@ -12,6 +12,7 @@ from typing import TYPE_CHECKING, Any
 
 from clinic.care import calc
 from clinic.care.codes import AlertCode, ItemCode
+from clinic.care.formatting import format_against
 from clinic.records.values import parse_utc
 
 if TYPE_CHECKING:
@@ -28,15 +29,16 @@ def antibody_risk(name: str, titre: int | None, iu_ml: float | None, profile: Pr
     crit = s["critical_titre"].get(name, s["critical_titre"]["other"])
     q = s["quantitation"].get(name) if s["use_quantitation"] else None
     if q is not None and iu_ml is not None:
+        level = format_against(iu_ml, (q["moderate_iu_ml"], q["high_iu_ml"]), 1, trim=True, note=False)
         if iu_ml > q["high_iu_ml"]:
             return {"critical": True, "level": "high", "by": "quantitation",
-                    "text": f"{name} {iu_ml:g} IU/mL, above {q['high_iu_ml']:g}: high risk of HDFN — refer urgently"}
+                    "text": f"{name} {level} IU/mL, above {q['high_iu_ml']:g}: high risk of HDFN — refer urgently"}
         if iu_ml >= q["moderate_iu_ml"]:
             return {"critical": True, "level": "moderate", "by": "quantitation",
-                    "text": f"{name} {iu_ml:g} IU/mL ({q['moderate_iu_ml']:g} to {q['high_iu_ml']:g}): moderate "
+                    "text": f"{name} {level} IU/mL ({q['moderate_iu_ml']:g} to {q['high_iu_ml']:g}): moderate "
                             f"risk — refer to fetal medicine"}
         return {"critical": False, "level": "low", "by": "quantitation",
-                "text": f"{name} {iu_ml:g} IU/mL, below {q['moderate_iu_ml']:g}: low risk — keep monitoring"}
+                "text": f"{name} {level} IU/mL, below {q['moderate_iu_ml']:g}: low risk — keep monitoring"}
     if crit <= 1:
         return {"critical": True, "level": "any", "by": "presence",
                 "text": f"{name} at any titre: refer to fetal medicine (the profile refers on detection)"}
@@ -69,6 +71,7 @@ def surveillance_items(pl: Planner) -> None:
     critical_at: datetime | None = None
     critical_ids: list[str] = []
     last_sample: datetime | None = None
+    no_level: list[tuple[datetime, str]] = []   # antibodies whose latest screen has no titre or quantitation
     for name, fs in sorted(by_ab.items()):
         fs.sort(key=lambda f: (f["sampled_at"], f["screen_id"]))
         latest = fs[-1]
@@ -76,6 +79,8 @@ def surveillance_items(pl: Planner) -> None:
         latest["risk"] = risk
         t = parse_utc(latest["sampled_at"])
         last_sample = t if last_sample is None or t > last_sample else last_sample
+        if risk["level"] == "unknown":
+            no_level.append((t, name))
         for f in fs:
             r = antibody_risk(name, f.get("titre"), f.get("iu_ml"), p)
             if r["critical"]:
@@ -90,8 +95,9 @@ def surveillance_items(pl: Planner) -> None:
         if len(titres) >= 2:
             (_, a, ida), (_, b, idb) = titres[-2], titres[-1]
             if titre_rise(a, b, s["significant_rise_dilutions"]):
+                rise = format_against(math.log2(b / a), s["significant_rise_dilutions"], 0, note=False)
                 pl.alert(AlertCode.TITRE_RISE, "warning",
-                         f"{name} titre rose from 1:{a} to 1:{b} ({int(round(math.log2(b / a)))} dilutions): a rise of "
+                         f"{name} titre rose from 1:{a} to 1:{b} ({rise} dilutions): a rise of "
                          f"{s['significant_rise_dilutions']} dilutions or more is significant — discuss with fetal "
                          f"medicine", src, [ida, idb])
     born = pl.born_at
@@ -105,13 +111,21 @@ def surveillance_items(pl: Planner) -> None:
         else:
             due = last_sample + timedelta(days=s["titre_interval_days_late"])
         opens, closes = due - timedelta(days=3), due + timedelta(days=7)
+        first_level = ""
+        if no_level:
+            # A clinically significant antibody found without a level: the first titre or
+            # quantitation is due now, not at the next interval (BSH 2016, White et al.).
+            due = opens = min(t for t, _ in no_level)
+            closes = due + timedelta(days=p.get("antibody.identify_within_days"))
+            first_level = (f"no titre or quantitation yet for {', '.join(n for _, n in sorted(no_level))}: ask the "
+                           f"laboratory to titre or quantify it now; then ")
         it = pl.add(ItemCode.SURVEILLANCE_TITRE, "Repeat antibody titre / quantitation", "due", "", src,
                     due=due, opens=opens, closes=closes, late_until=None)
         if born:
             it.state, it.reason = "not-needed", "the baby is born; follow the baby for HDFN"
         else:
             it.state = _open_state(now, opens, closes)
-            it.reason = (f"repeat every {s['titre_interval_days_early'] // 7} weeks until "
+            it.reason = (f"{first_level}repeat every {s['titre_interval_days_early'] // 7} weeks until "
                          f"{p.get('surveillance.interval_change_ga')}, then every "
                          f"{s['titre_interval_days_late'] // 7} weeks "
                          f"(last sample {last_sample.astimezone(tz):%Y-%m-%d})")
@@ -159,13 +173,13 @@ def surveillance_items(pl: Planner) -> None:
         if calc.MCA_GA_MIN_DAYS <= ga <= calc.MCA_GA_MAX_DAYS:
             r = calc.mca_result(d["mca_psv_cm_s"], ga, p)
             sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
-            pl.alert(AlertCode.MCA_PSV, sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom']:.2f} MoM "
+            pl.alert(AlertCode.MCA_PSV, sev, f"MCA-PSV {r['psv_cm_s']:g} cm/s at {r['ga']} = {r['mom_text']} MoM "
                                      f"(median {r['median_cm_s']:.1f}; {r['severity']}): {r['suggestion']}",
                      r["source"], [d["id"]])
             dop = pl.item(ItemCode.SURVEILLANCE_DOPPLER)
             if dop is not None and dop.state != "not-needed" and dop.opens is not None:
-                dop.reason += f"; last {r['mom']:.2f} MoM — {r['suggestion']}"
-                if r["mom"] >= p.get("surveillance.mca_mom_mild") and dop.due is not None:
+                dop.reason += f"; last {r['mom_text']} MoM — {r['suggestion']}"
+                if r["severity"] != "none" and dop.due is not None:
                     # From the mild threshold up the next Doppler is due within one interval,
                     # not within the usual two: the deadline is the due date itself.
                     dop.closes = dop.due
@@ -178,7 +192,7 @@ def surveillance_items(pl: Planner) -> None:
         if calc.HB_GA_MIN_DAYS <= ga <= calc.HB_GA_MAX_DAYS:
             r = calc.fetal_hb_result(f["hb_g_dl"], ga, p)
             sev = ANAEMIA_ALERT_SEVERITY[r["severity"]]
-            pl.alert(AlertCode.FETAL_HB, sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom']:.2f} MoM "
+            pl.alert(AlertCode.FETAL_HB, sev, f"fetal Hb {r['hb_g_dl']:g} g/dL at {r['ga']} = {r['mom_text']} MoM "
                                       f"({r['severity']} anaemia by Mari 2000 classes): for the fetal medicine team",
                      r["source"], [f["id"]])
     if born and pl.birth:

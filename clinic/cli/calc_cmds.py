@@ -164,7 +164,7 @@ def mom_cmd(psv, ga, profile_id, data, as_json):
     r = calc.mca_result(psv, _ga(ga), prof)
     r["profile"] = prof.id
     s = prof.get("surveillance")
-    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_cm_s']:.1f} cm/s) "
+    _out(as_json, r, [f"MCA-PSV {psv:g} cm/s at {r['ga']}: {r['mom_text']} MoM (median {r['median_cm_s']:.1f} cm/s) "
                       f"— {r['severity']}",
                       f"  thresholds: {s['mca_mom_mild']:.2f} MoM {r['threshold_mild_cm_s']:.1f}, "
                       f"{s['mca_mom_moderate']:.2f} MoM {r['threshold_moderate_cm_s']:.1f}, "
@@ -184,7 +184,7 @@ def fetal_hb_cmd(hb, ga, profile_id, data, as_json):
     prof = _profile(profile_id, data)
     r = calc.fetal_hb_result(hb, _ga(ga), prof)
     r["profile"] = prof.id
-    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom']:.2f} MoM (median {r['median_g_dl']:.1f} g/dL) "
+    _out(as_json, r, [f"fetal Hb {hb:g} g/dL at {r['ga']}: {r['mom_text']} MoM (median {r['median_g_dl']:.1f} g/dL) "
                       f"— anaemia: {r['severity']}", f"  source: {r['source']}"])
 
 
@@ -240,19 +240,23 @@ def fmh_cmd(fetal_cells, cells_counted, percent, maternal_volume_ml, height_cm, 
 @click.option("--kind", required=True, type=click.Choice(EVENT_KINDS), help="The sensitising event.")
 @click.option("--ga", required=True, help="GA at the event, 10+0 or decimal weeks.")
 @click.option("--ongoing", is_flag=True, help="Bleeding continues (intermittent).")
+@click.option("--heavy/--not-heavy", default=None, help="The bleeding is heavy (or not); left out: not known.")
+@click.option("--repeated/--not-repeated", default=None, help="The bleeding is repeated (or not).")
+@click.option("--pain/--no-pain", default=None, help="With abdominal pain (or without).")
 @click.option("--stocked-vial-iu", type=int, multiple=True,
               help="Vial sizes stocked, IU (repeatable; default: the facility's products).")
 @profile_option
 @data_option
 @json_option
 @clean_errors(*ERRORS)
-def event_dose_cmd(kind, ga, ongoing, stocked_vial_iu, profile_id, data, as_json):
+def event_dose_cmd(kind, ga, ongoing, heavy, repeated, pain, stocked_vial_iu, profile_id, data, as_json):
     """Anti-D for a sensitising event: dose, deadline, FMH test."""
     prof = _profile(profile_id, data)
     s = _settings(data)
     products = tuple(Product(f"{v} IU vial", v) for v in stocked_vial_iu) or (s.products if s else ())
     days = _ga(ga)
-    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing)
+    r = calc.event_dose(kind, days, prof, products=products, ongoing=ongoing, bleeding_heavy=heavy,
+                        bleeding_repeated=repeated, abdominal_pain=pain)
     obj = r.to_dict()
     obj.update({"kind": kind, "ga_days": days, "ga": format_ga(days), "profile": prof.id,
                 "profile_version": prof.version, "caution": prof.caution})

@@ -14,7 +14,7 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data, write_file
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data, write_file
 
 # Exit status of read-card by trust state.
 EXIT_BY_TRUST = {"trusted": 0, "unknown-issuer": 0, "altered": 2, "unreadable": 3}
@@ -46,10 +46,9 @@ def handled(fn):
 
 def _open(data):
     from clinic.config import load_settings
-    from clinic.store import Store
     d = resolve_data(data)
     settings = load_settings(d)
-    return d, settings, Store(d, settings)
+    return d, settings, open_store(d, settings)
 
 
 def _find_pregnancy(store, ref: str) -> str:
@@ -178,11 +177,10 @@ def read_card_cmd(text, image, as_json, do_import, woman_id, new_woman, accept_u
     if do_import:
         from clinic.card.importing import import_reading
         from clinic.config import load_settings
-        from clinic.store import Store
         if not reading.ok:
             _show(reading, as_json, result)
             sys.exit(EXIT_BY_TRUST[reading.trust])
-        store = Store(d, load_settings(d))
+        store = open_store(d, load_settings(d))
         imp = import_reading(store, reading, data_dir=d, woman_id=woman_id, new_woman=new_woman,
                              accept_unknown_issuer=accept_unknown_issuer)
         result["import"] = imp.to_dict()

@@ -23,6 +23,14 @@ def resolve_data(data: Path | None) -> Path:
     return data_dir_from(data)
 
 
+def open_store(data_dir: Path, settings=None):
+    """The store of ``data_dir``, its backups signed with the facility key."""
+    from clinic.signing.seal import BackupSeal
+    from clinic.store import Store
+
+    return Store(data_dir, settings, seal=BackupSeal(data_dir))
+
+
 def emit_json(obj) -> None:
     click.echo(json.dumps(obj, indent=2, ensure_ascii=False, default=str))
 

@@ -3,7 +3,7 @@ from __future__ import annotations
 
 import click
 
-from clinic.cli import calc_cmds, card_cmds, report_cmds, store_cmds, supply_cmds, web_cmds
+from clinic.cli import calc_cmds, card_cmds, report_cmds, store_cmds, supply_cmds, users_cmds, web_cmds
 
 
 @click.group(context_settings={"help_option_names": ["-h", "--help"]})
@@ -15,7 +15,7 @@ def cli():
     """
 
 
-for module in (store_cmds, web_cmds, calc_cmds, card_cmds, report_cmds, supply_cmds):
+for module in (store_cmds, users_cmds, web_cmds, calc_cmds, card_cmds, report_cmds, supply_cmds):
     module.register(cli)
 
 

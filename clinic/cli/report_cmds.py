@@ -9,7 +9,7 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data, write_file
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data, write_file
 from clinic.config import ConfigError
 from clinic.printing.errors import PrintError
 from clinic.records.validate import ValidationError
@@ -35,9 +35,8 @@ def _now(as_of: str | None) -> datetime:
 
 
 def _store(data_dir: Path):
-    from clinic.store import Store
 
-    return Store(data_dir)
+    return open_store(data_dir)
 
 
 @click.command("export")

@@ -8,7 +8,8 @@ from pathlib import Path
 
 import click
 
-from clinic.cli.common import clean_errors, data_option, emit_json, fail, resolve_data
+from clinic.accounts.users import AccountError
+from clinic.cli.common import clean_errors, data_option, emit_json, fail, open_store, resolve_data
 from clinic.config import CONFIG_FILE, FACILITY_KINDS, ROLES, ConfigError, parse_settings
 from clinic.records.validate import ValidationError
 from clinic.signing.errors import SigningError
@@ -16,7 +17,7 @@ from clinic.store import Store, StoreError
 from clinic.store.backup import sha256_file
 from clinic.store.storage import atomic_write_bytes, ensure_dir
 
-LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, OSError)
+LIBRARY_ERRORS = (StoreError, ValidationError, ConfigError, SigningError, AccountError, OSError)
 
 
 def _toml_str(s: str) -> str:
@@ -25,8 +26,7 @@ def _toml_str(s: str) -> str:
 
 
 def config_text(*, facility_id: str, facility_name: str, kind: str, phone: str, district: str,
-                timezone: str, profile: str, username: str, role: str, password_hash: str,
-                keep: int = 14) -> str:
+                timezone: str, profile: str, keep: int = 14) -> str:
     """The config.toml that `init` writes, with comments for the facility to review."""
     q = _toml_str
     return f"""\
@@ -57,16 +57,17 @@ products = [
 [backup]
 keep = {int(keep)}                      # how many daily backups to keep in <data>/backups
 
-[[accounts]]
-username = {q(username)}
-display_name = {q(username)}
-role = {q(role)}
-password_hash = {q(password_hash)}
+[security]
+idle_minutes = 15              # a session ends after this long without use (a shared laptop)
+lock_after = 5                 # wrong passwords in a row before an account locks
+lock_minutes = 15              # how long it stays locked (an admin may unlock it sooner)
+
+# Staff accounts are in users.json (0600): `rhledger users add NAME --role ROLE`.
 """
 
 
 def _open(data: Path | None) -> Store:
-    return Store(resolve_data(data))
+    return open_store(resolve_data(data))
 
 
 @click.command("init")
@@ -82,15 +83,22 @@ def _open(data: Path | None) -> Store:
 @click.option("--user", "username", default="admin", show_default=True, help="User name of the first account.")
 @click.option("--role", type=click.Choice(ROLES), default="admin", show_default=True, help="Role of that account.")
 @click.option("--password", default=None, help="Its password (prompted, hidden, when not given).")
+@click.option("--one-time-password", "otp", is_flag=True,
+              help="Print a one-time password instead (shown once; changed at the first sign-in).")
 @clean_errors(*LIBRARY_ERRORS)
 def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, profile, username, role,
-             password):
-    """Create a data directory: config.toml, an empty store and the facility signing key.
+             password, otp):
+    """Create a data directory: config.toml, the first (admin) account, an empty store and the
+    facility signing key.
 
-    Refuses to touch a directory that already has a config.toml.
+    Refuses to touch a directory that already has a config.toml. The folder is made readable
+    by its owner only (0700).
     """
-    from werkzeug.security import generate_password_hash
+    import os
+    import time
 
+    from clinic.accounts.passwords import PasswordPolicyError, check_policy
+    from clinic.accounts.users import AccountError, UserStore, check_username
     from clinic.signing.keys import ensure_facility_key
 
     data_dir = resolve_data(data)
@@ -98,22 +106,35 @@ def init_cmd(data, facility_id, facility_name, kind, phone, district, timezone, 
     if cfg.exists():
         fail(f"{cfg} already exists; init never overwrites a configuration. "
              f"Edit it, or choose another directory with --data DIR")
-    if not username.strip():
-        fail("--user: give a user name")
-    if password is None:
+    try:
+        username = check_username(username)
+    except AccountError as e:
+        fail(f"--user: {e}")
+    if otp and password is not None:
+        fail("--one-time-password and --password: give one of them")
+    if password is None and not otp:
         password = click.prompt(f"Password for {username}", hide_input=True, confirmation_prompt=True)
-    if len(password) < 8:
-        fail("--password: use at least 8 characters")
+    if password is not None:
+        try:
+            check_policy(password, "--password")
+        except PasswordPolicyError as e:
+            fail(str(e))
     text = config_text(facility_id=facility_id, facility_name=facility_name or facility_id, kind=kind,
-                       phone=phone, district=district, timezone=timezone, profile=profile,
-                       username=username.strip(), role=role, password_hash=generate_password_hash(password))
+                       phone=phone, district=district, timezone=timezone, profile=profile)
     settings = parse_settings(tomllib.loads(text), str(cfg))  # every value checked before anything is written
     ensure_dir(data_dir)
+    os.chmod(data_dir, 0o700)
     key = ensure_facility_key(data_dir, settings.facility_id)
+    _user, one_time = UserStore(data_dir).add(username, role, password=password, by="rhledger init",
+                                              now=time.time())
     atomic_write_bytes(cfg, text.encode("utf-8"))
-    Store(data_dir, settings=settings)
+    open_store(data_dir, settings)
     click.echo(f"Created {data_dir} for {settings.facility_name} ({settings.facility_id}).")
     click.echo(f"Settings: {cfg} (review the [care] and [stock] values).")
+    click.echo(f"Account {username} ({role}) in {data_dir / 'users.json'}.")
+    if one_time:
+        click.echo(f"One-time password for {username}: {one_time}")
+        click.echo("It is shown only now; choose your own password at the first sign-in.")
     click.echo(f"Facility signing key fingerprint: {key.fingerprint}")
     click.echo("Give this fingerprint to the district office so they can trust this facility's cards.")
 
@@ -133,34 +154,49 @@ def backup_cmd(data):
 @click.argument("backup_file", type=click.Path(dir_okay=False, path_type=Path))
 @data_option
 @click.option("--yes", is_flag=True, help="Do not ask for confirmation.")
+@click.option("--from-facility", "from_facility", default=None, metavar="ID",
+              help="Restore a backup of another facility (its ID), replacing this installation's records.")
+@click.option("--unverified", is_flag=True,
+              help="Restore a backup whose origin cannot be proven (not signed, or by a key not known here).")
 @clean_errors(*LIBRARY_ERRORS)
-def restore_cmd(backup_file, data, yes):
-    """Replace the store by BACKUP_FILE after verifying its checksums.
+def restore_cmd(backup_file, data, yes, from_facility, unverified):
+    """Replace the store by BACKUP_FILE after verifying its checksums and its signature.
 
-    A safety backup of the current files is made first. Stop the server before restoring.
+    A backup of another facility is refused unless --from-facility names it. A safety backup
+    of the current files is made first. Stop the server before restoring.
     """
+    from clinic.signing.seal import BackupSeal
+
     data_dir = resolve_data(data)
     if not yes:
         click.confirm(f"Replace the records in {data_dir} by {backup_file}?", abort=True)
-    result = Store.restore(data_dir, backup_file)
+    result = Store.restore(data_dir, backup_file, seal=BackupSeal(data_dir), from_facility=from_facility,
+                           unverified=unverified)
     for note in result["notes"]:
         click.echo(f"Note: {note}")
     click.echo(f"Checksums verified; restored {backup_file} (made {result['info'].get('created_at', '?')}).")
     if result["safety_backup"]:
         click.echo(f"The files it replaced are kept in {result['safety_backup']}")
-    Store(data_dir)  # opens (and migrates) the restored store: proves it reads
+    open_store(data_dir)  # opens (and migrates) the restored store: proves it reads
 
 
 @click.command("check")
 @data_option
 @click.option("--json", "as_json", is_flag=True, help="Print the report as JSON.")
+@click.option("--repair", is_flag=True,
+              help="First rebuild the index (records/index.log) from the partition files, which are the truth.")
 @clean_errors(*LIBRARY_ERRORS)
-def check_cmd(data, as_json):
+def check_cmd(data, as_json, repair):
     """Verify the store: files parse, index consistent, records valid, parents exist, audit readable.
 
-    Exits non-zero when it finds a problem.
+    Exits non-zero when it finds a problem. With --repair the index is rebuilt first (the old
+    one is kept as records/.index.log.replaced).
     """
     store = _open(data)
+    if repair:
+        n = store.repair_index()
+        if not as_json:
+            click.echo(f"Index rebuilt from the partition files: {n} records listed.")
     rep = store.check()
     if as_json:
         emit_json({"ok": rep.ok, "partitions": rep.partitions, "audit_lines": rep.audit_lines,

@@ -27,6 +27,8 @@ def _run(data_dir: Path, host: str | None, port: int, threads: int, lan: bool) -
         app = create_app(data_dir)
     except (ConfigError, StoreError) as e:
         fail(str(e))
+    for warning in app.extensions["rhledger"].get("file_warnings", []):
+        click.echo(f"Warning: {warning}", err=True)
     from clinic.web.housekeeping import start_daily_backups
 
     start_daily_backups(app.extensions["rhledger"]["store"])

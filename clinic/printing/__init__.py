@@ -3,6 +3,7 @@
 - ``errors``: ``PrintError``, the one error of printing (card, referral note, district report)
 - ``fetcher``: the WeasyPrint URL fetcher that serves files inside ``printables/`` and refuses
   everything else (other schemes, ``..``, paths or symlinks leading outside, unknown file types)
+- ``glyphs``: which characters the bundled fonts draw; any other prints as a placeholder
 - ``pdf``: ``render_template`` (the Jinja templates of ``printables/``, autoescaped) and
   ``render_pdf`` (WeasyPrint, with every warning it logs turned into ``PrintError``)
 

@@ -74,8 +74,11 @@ def render_pdf(html: str, *, stylesheets: Sequence[str] = (), base: Path = PRINT
     from weasyprint.text.fonts import FontConfiguration
     from weasyprint.urls import FatalURLFetchingError
 
+    from clinic.printing.glyphs import faces_css, printable
+
     root = Path(base).resolve()
     fetcher = fetcher_class()(root)
+    html = printable(html)  # a character no bundled font has prints as a placeholder, not a warning
     with _LOCK, _weasyprint_problems() as problems:
         try:
             # One font configuration for the page and the stylesheets given here: without it
@@ -84,6 +87,10 @@ def render_pdf(html: str, *, stylesheets: Sequence[str] = (), base: Path = PRINT
             doc = weasyprint.HTML(string=html, base_url=root.as_uri() + "/", url_fetcher=fetcher)
             css = [weasyprint.CSS(url=(root / s).as_uri(), url_fetcher=fetcher, font_config=fonts)
                    for s in stylesheets]
+            faces = faces_css(html)  # the script fonts this document's text needs
+            if faces:
+                css.insert(0, weasyprint.CSS(string=faces, base_url=root.as_uri() + "/", url_fetcher=fetcher,
+                                             font_config=fonts))
             pdf = doc.write_pdf(stylesheets=css, font_config=fonts)
         except FatalURLFetchingError as e:
             cause = e if isinstance(e, PrintError) else (e.__cause__ or e)

@@ -52,6 +52,7 @@ EVENT_WORDS: Final[dict[str, str]] = {
     "fetal-blood-sampling": "fetal blood sampling",
     "intrauterine-death": "intrauterine death",
     "other": "other",
+    "threatened-miscarriage": "threatened miscarriage",
 }
 
 

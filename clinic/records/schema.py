@@ -48,6 +48,9 @@ EVENT_KINDS = (
     "fetal-blood-sampling",
     "intrauterine-death",
     "other",
+    # Added later (the card payload appends new choices at the end): bleeding with the
+    # pregnancy continuing, the guidelines' own term (BSH 2014, Qureshi et al.).
+    "threatened-miscarriage",
 )
 FMH_METHODS = ("rosette", "kleihauer-betke", "flow-cytometry")
 ROSETTE_RESULT = ("positive", "negative")
@@ -78,6 +81,9 @@ class Field:
     help: str = ""
     # For type "date"/"datetime": refuse values after "now" (with a small clock skew allowance).
     not_future: bool = True
+    # For type "bool": the form always asks, so an unticked box records "no" (False) rather
+    # than leaving the field out; left out then means "not asked" (older records, the API).
+    unticked_is_no: bool = False
 
 
 @dataclass(frozen=True)
@@ -189,6 +195,12 @@ _kind(Kind("event", "Sensitising event", "pregnancy", (
     Field("event_kind", "choice", "Event", required=True, choices=EVENT_KINDS),
     Field("occurred_at", "datetime", "When it happened", required=True),
     _ga(),
+    # What the guidelines ask about bleeding before 12 weeks (BSH 2014, Qureshi et al.,
+    # Transfus Med 24:8-20: anti-D for uterine bleeding that is repeated, heavy or with
+    # abdominal pain): three separate facts, each asked on the form.
+    Field("bleeding_heavy", "bool", "Bleeding is heavy", unticked_is_no=True),
+    Field("bleeding_repeated", "bool", "Bleeding is repeated (more than one episode)", unticked_is_no=True),
+    Field("abdominal_pain", "bool", "With abdominal pain", unticked_is_no=True),
     Field("ongoing", "bool", "Bleeding continues (intermittent or ongoing)"),
     Field("notes", "str", "Notes", max_length=500),
 )))
@@ -217,6 +229,10 @@ _kind(Kind("dose", "Anti-D given", "pregnancy", (
     Field("indication", "choice", "Indication", required=True, choices=INDICATIONS),
     Field("given_by", "str", "Given by", required=True, max_length=80),
     Field("covers_id", "ref", "Event or birth this dose covers"),
+    # A dose the care engine's plan does not support (more than the profile allows, a woman
+    # managed as RhD positive, after immune anti-D): a clinician records it, with the reason.
+    Field("override_reason", "str", "Reason for departing from the plan", max_length=300,
+          help="only when the dose differs from the plan; recorded by a clinician"),
 ), cross_checks=("dose_canonical",)))
 
 _kind(Kind("doppler", "MCA Doppler", "pregnancy", (

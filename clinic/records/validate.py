@@ -29,6 +29,19 @@ class UnknownKind(ValidationError):
     """A record kind the schema does not describe."""
 
 
+def check_text(s: str) -> None:
+    """Text that can be stored, shown and printed: no control characters (line breaks and tabs
+    aside) and no broken characters (lone UTF-16 surrogates). ValueError says which and where."""
+    for i, ch in enumerate(s):
+        o = ord(ch)
+        if (o < 0x20 and ch not in "\n\r\t") or 0x7F <= o < 0xA0:
+            raise ValueError(f"contains a control character (U+{o:04X}, character {i + 1}), which cannot be "
+                             f"stored or printed: remove it (retype the text if it was pasted)")
+        if 0xD800 <= o <= 0xDFFF:
+            raise ValueError(f"contains a broken character (U+{o:04X}, character {i + 1}, half of a UTF-16 pair): "
+                             f"retype the text")
+
+
 def _empty(v: Any) -> bool:
     return v is None or (isinstance(v, str) and v.strip() == "") or (isinstance(v, (list, tuple)) and not v)
 
@@ -54,6 +67,7 @@ def _coerce(f: Field, v: Any, now: datetime, tz: tzinfo) -> Any:
         s = str(v).strip()
         if len(s) > f.max_length:
             raise ValueError(f"is {len(s)} characters long; at most {f.max_length} allowed")
+        check_text(s)
         return s
     if t == "bool":
         if isinstance(v, bool):

@@ -88,6 +88,12 @@ class BundleInvalid(BundleRefused):
     reason = "invalid"
 
 
+class BundleNotOwner(BundleRefused):
+    """The bundle carries records of a facility other than the one that signed it."""
+
+    reason = "not-owner"
+
+
 class ExportError(BundleError):
     """The export cannot be made (say what to do)."""
 
@@ -212,8 +218,23 @@ def read_bundle(data: bytes, trust, *, name: str = "bundle", now: datetime | Non
     if not isinstance(records, list) or len(records) != header.get("count"):
         raise BundleInvalid(f"{name}: the header counts {header.get('count')} records but the body holds "
                             f"{len(records) if isinstance(records, list) else 'no list of'} records")
+    check_owner(records, v.facility_id, name=name)
     check_records(records, name=name, until=header.get("until"), now=now, check=check)
     return Bundle(header, records, v.facility_id, hashlib.sha256(data).hexdigest(), name)
+
+
+def check_owner(records: list, facility: str, *, name: str) -> None:
+    """A facility's signature covers only its own records: BundleNotOwner when any record names
+    another facility (nothing of the bundle is imported)."""
+    foreign = [(i, r) for i, r in enumerate(records) if isinstance(r, dict) and r.get("facility") != facility]
+    if not foreign:
+        return
+    shown = "; ".join(f"record {i + 1} ({r.get('kind')} {r.get('id')}) names {r.get('facility')!r}"
+                      for i, r in foreign[:5])
+    raise BundleNotOwner(f"{name} is refused, nothing imported: it is signed by {facility} but "
+                         f"{len(foreign)} of its records belong to another facility ({shown}). A bundle "
+                         f"carries only the signing facility's own records; each facility sends its own. "
+                         f"Ask {facility} to export again with an up-to-date rhledger.")
 
 
 def check_records(records: list, *, name: str, until: str | None, now: datetime, check=None) -> None:
@@ -357,7 +378,9 @@ def export_bundle(store, data_dir: Path, *, facility: str, out: Path | None = No
     ledger = _read_json(ledger_path, {}) if use_ledger else None
     records = []
     hashes = {}
-    for r in store.iter_records(since=None if use_ledger else since_text):
+    # Only this facility's own records: its signature vouches for nothing else (records of
+    # other facilities that came here on cards reach the district in their own bundles).
+    for r in store.iter_records(since=None if use_ledger else since_text, facility=facility):
         if r.get("kind") not in KINDS:
             continue
         h = _record_hash(r)
@@ -429,8 +452,10 @@ def _log(data_dir: Path, entry: dict) -> None:
 
 
 def import_bundle(store, data_dir: Path, data: bytes, *, name: str, trust=None,
-                  now: datetime | None = None) -> ImportResult:
+                  now: datetime | None = None, by: str | None = None) -> ImportResult:
     """Check one bundle completely, then merge its records. A refusal imports nothing.
+
+    ``by``: the person importing (named in the audit trail); else "import:bundle:<facility>".
 
     Returns an ImportResult; a refused bundle has status "refused" and a message (the
     reason is also in the import log).
@@ -450,7 +475,8 @@ def import_bundle(store, data_dir: Path, data: bytes, *, name: str, trust=None,
     outcomes = Counter()
     # The same "now" as the check in read_bundle, so a record that passed it cannot fail here.
     when = max(now, parse_utc(b.header["until"])) if b.header.get("until") else now
-    outcomes.update(store.merge_foreign_many(merge_order(b.records), by=f"import:bundle:{b.facility}", now=when))
+    outcomes.update(store.merge_foreign_many(merge_order(b.records), by=by or f"import:bundle:{b.facility}",
+                                             now=when, signer=b.facility))
     res = ImportResult(name, "imported", b.facility, sha, len(b.records), dict(sorted(outcomes.items())),
                        already=already)
     _remember_care(data_dir, b)

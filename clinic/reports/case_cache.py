@@ -145,15 +145,57 @@ class CaseCache:
 
     def cases(self, store, settings, *, now: datetime, select: Callable[[dict, dict, list[dict]], bool],
               failed: list) -> Inputs:
-        """The cases of the pregnancies ``select(woman, pregnancy, entries)`` keeps, planned with this
-        installation's own settings; a pregnancy that cannot be planned (or whose woman is missing)
-        goes to ``failed`` as (woman or None, pregnancy, message) instead of stopping the rest."""
+        """The cases of the pregnancies ``select(woman, pregnancy, entries)`` keeps, planned as this
+        installation plans one pregnancy (``care_inputs.plan_from_settings`` with the store: her
+        earlier pregnancies handed on); a pregnancy that cannot be planned (or whose woman is
+        missing) goes to ``failed`` as (woman or None, pregnancy, message) instead of stopping the rest."""
         with self._lock:
             return self._load(store, settings, now, select, None, None, 1, failed)
+
+    # ---- what the woman's earlier pregnancies hand on (``cases`` only) --------------------------
+
+    def pregnancies_of_woman(self, woman_id: str) -> list[dict]:
+        """As ``Store.pregnancies_of_woman``, from what was read (``care_inputs.earlier_pregnancies``)."""
+        out = [self.pregnancies[p] for p in self.of_woman.get(woman_id, ()) if p in self.pregnancies]
+        return sorted(out, key=lambda p: (p.get("booked_on", ""), p["created_at"]))
+
+    def history(self, pregnancy_id: str) -> tuple[dict, dict, list[dict]]:
+        """As ``Store.history``, from what was read."""
+        p = self.pregnancies[pregnancy_id]
+        return self.women[p["woman_id"]], p, self._entries_of(pregnancy_id)
+
+    def _earlier_content(self, preg: dict) -> str:
+        """A hash of the records of every other pregnancy of the woman (what ``earlier`` may read)."""
+        others = sorted(p for p in self.of_woman.get(preg.get("woman_id"), ()) if p != preg["id"])
+        if not others:
+            return ""
+        return content_key({}, {}, [[self.pregnancies.get(p), self._entries_of(p)] for p in others])
+
+    def _plan_with_earlier(self, settings, jobs: list, planner, now: datetime) -> list:
+        from clinic.care import plan_pregnancy
+        from clinic.care.errors import CareError
+        from clinic.care_inputs import earlier_pregnancies
+        from clinic.reports.plan_cache import entry_for
+
+        out: list = []
+        for woman, preg, ents in jobs:
+            def make(n, woman=woman, preg=preg, ents=ents):
+                earlier = earlier_pregnancies(settings, self, preg, n)
+                return plan_pregnancy(woman, preg, ents, now=n, profile=planner.profile, context=planner.context,
+                                      earlier=earlier)
+            try:
+                out.append(entry_for(now, make, planner.context.tz))
+            except CareError as e:
+                out.append(str(e))
+        return out
 
     def _load(self, store, settings, now, select, facility_care, facility_names, workers, failed) -> Inputs:
         own, per = planners(settings, facility_care)
         dirty = self._refresh(store)
+        with_earlier = failed is not None
+        if with_earlier:  # a change to one pregnancy of a woman may change the plans of her later ones
+            dirty |= {q for p in dirty if p in self.pregnancies
+                      for q in self.of_woman.get(self.pregnancies[p].get("woman_id"), ())}
         out: dict[str, Case] = {}
         jobs, job_meta = [], []
         used: dict[str, str] = {}
@@ -173,7 +215,7 @@ class CaseCache:
                 kept = None
             if pid in dirty or kept is None:
                 ents = self._entries_of(pid)
-                content = content_key(woman, preg, ents)
+                content = content_key(woman, preg, ents) + (self._earlier_content(preg) if with_earlier else "")
                 if kept is not None and kept.content != content:
                     kept = None
             else:
@@ -193,7 +235,10 @@ class CaseCache:
                 continue
             jobs.append((woman, preg, ents))
             job_meta.append((pid, content, pl.key))
-        entries = plan_jobs(jobs, own, per, settings, facility_care, now, workers, failed=failed)
+        if with_earlier:
+            entries = self._plan_with_earlier(settings, jobs, own, now)
+        else:
+            entries = plan_jobs(jobs, own, per, settings, facility_care, now, workers)
         for (woman, preg, ents), (pid, content, pkey), entry in zip(jobs, job_meta, entries, strict=True):
             if not isinstance(entry, PlanEntry):
                 failed.append((woman, preg, entry))   # the engine's message, collected (``cases``)

@@ -9,7 +9,7 @@ from __future__ import annotations
 from html import escape
 
 from clinic.reports.coverage import Indicator, MonthReport
-from clinic.reports.month import Month
+from clinic.reports.month import Month, percentage_text
 
 W, H = 240, 78
 LEFT, RIGHT, TOP, BOTTOM = 26, 44, 8, 18
@@ -25,7 +25,7 @@ def series(trend: dict[Month, MonthReport], facility: str, ind: Indicator) -> li
         elif c.percentage is None:
             out.append((m, None, "no denominator"))
         else:
-            out.append((m, c.percentage, f"{c.percentage:.1f}% ({c.numerator}/{c.denominator})"))
+            out.append((m, c.percentage, f"{c.percentage_text}% ({c.numerator}/{c.denominator})"))
     return out
 
 
@@ -77,7 +77,7 @@ def trend_svg(points: list[tuple[Month, float | None, str]], *, is_count: bool, 
             continue
         parts.append(f'<circle cx="{x(i):.1f}" cy="{y(v):.1f}" r="1.8" fill="#1f5f99">{tip}</circle>')
     last = points[-1]
-    text = "–" if last[1] is None else (f"{last[1]:g}" if is_count else f"{last[1]:.1f}%")
+    text = "–" if last[1] is None else (f"{last[1]:g}" if is_count else f"{percentage_text(last[1])}%")
     ly = y(last[1]) if last[1] is not None else TOP + ph
     parts.append(f'<text x="{LEFT + pw + 4}" y="{ly + 3:.1f}" font-size="8" fill="#222">{escape(text)}</text>')
     parts.append("</svg>")

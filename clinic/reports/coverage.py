@@ -22,7 +22,7 @@ from dataclasses import dataclass, field
 from datetime import datetime, tzinfo
 
 from clinic.reports.indicators import INDICATORS, Hit, Indicator, closed_in, indicator, indicator_by_id
-from clinic.reports.month import Month, percentage
+from clinic.reports.month import Month, percentage, percentage_text
 from clinic.reports.pregnancy_case import Case, ReportError, done, eligible, outcome_of
 from clinic.reports.stock import EXPIRY_WARNING_DAYS, balances
 from clinic.reports.usage import UsageRow, UsageTally
@@ -70,6 +70,11 @@ class Cell:
     @property
     def percentage(self) -> float | None:
         return percentage(self.numerator, self.denominator)
+
+    @property
+    def percentage_text(self) -> str:
+        """The percentage as printed: never "100.0" for not all nor "0.0" for some."""
+        return percentage_text(self.percentage)
 
 
 @dataclass

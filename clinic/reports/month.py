@@ -7,6 +7,8 @@ from datetime import date, datetime, timezone, tzinfo
 from decimal import ROUND_HALF_UP, Decimal
 from functools import lru_cache
 
+from clinic.care.formatting import digits_against, format_against
+
 _MONTH = re.compile(r"^(\d{4})-(\d{2})$")
 MONTH_NAMES = ("January", "February", "March", "April", "May", "June", "July", "August",
                "September", "October", "November", "December")
@@ -91,8 +93,15 @@ def _start(year: int, month: int, tz: tzinfo) -> datetime:
 
 def percentage(numerator: int, denominator: int | None) -> float | None:
     """numerator / denominator x 100, one decimal, halves rounded up; None when the
-    denominator is 0 or absent (nothing to measure is not 0 %)."""
+    denominator is 0 or absent (nothing to measure is not 0 %). Never 100.0 when not all, nor
+    0.0 when some: then as many more decimals as it takes (1999 of 2000 is 99.95, not 100.0)."""
     if not denominator:
         return None
     q = Decimal(numerator) * 100 / Decimal(denominator)
-    return float(q.quantize(Decimal("0.1"), rounding=ROUND_HALF_UP))
+    d = digits_against(q, (0, 100), 1)
+    return float(q.quantize(Decimal(1).scaleb(-d), rounding=ROUND_HALF_UP))
+
+
+def percentage_text(p: float | None) -> str:
+    """A reported percentage as printed (without the % sign): "33.3", "99.95", "100.0"."""
+    return "" if p is None else format_against(p, (0, 100), 1, note=False)

@@ -312,13 +312,19 @@ def watch(now: datetime, fn: Callable[[datetime], Any]) -> tuple[Any, datetime, 
 
 def plan_for_now(woman: dict, pregnancy: dict, entries: list[dict], *, now: datetime, profile, context) -> PlanEntry:
     """``plan_pregnancy`` at ``now``, and until when that plan stays right."""
-    plan, rec = _watched(now, lambda n: plan_pregnancy(woman, pregnancy, entries, now=n, profile=profile,
-                                                        context=context))
+    return entry_for(now, lambda n: plan_pregnancy(woman, pregnancy, entries, now=n, profile=profile,
+                                                    context=context), context.tz)
+
+
+def entry_for(now: datetime, make: Callable[[datetime], Plan], tz) -> PlanEntry:
+    """The plan ``make(now)`` returns, and until when it stays right (``make`` may plan more than
+    one pregnancy, an earlier one of the woman say: every use of ``now`` in it counts)."""
+    plan, rec = _watched(now, make)
     base = rec.base
     plan = dataclasses.replace(plan, now=base)
     if _holds_probe(plan):
         rec.bound(base, "the plan keeps a time made from now")
-    return PlanEntry(plan, base, rec.until or _NEVER, rec.why or "no turning point", context.tz)
+    return PlanEntry(plan, base, rec.until or _NEVER, rec.why or "no turning point", tz)
 
 
 def rebased(entry: PlanEntry, now: datetime) -> Plan:

@@ -114,22 +114,9 @@ def _worker_plan(chunk):
 
 
 def plan_jobs(jobs, own: Planner, per: dict[str, Planner], settings, facility_care, now: datetime,
-              workers: int | None = None, failed: list | None = None) -> list:
+              workers: int | None = None) -> list:
     """PlanEntry of each job, in order; from ``PARALLEL_FROM`` jobs on in several processes
-    (``workers``; default: the CPU count, at most 8); the result is the same. With ``failed`` (a
-    list), a job that cannot be planned gives the engine's message in its place (in this process)."""
-    if failed is not None:
-        from clinic.care.errors import CareError
-        from clinic.reports.plan_cache import plan_for_now
-
-        out: list = []
-        for woman, preg, ents in jobs:
-            pl = per.get(preg.get("facility"), own)
-            try:
-                out.append(plan_for_now(woman, preg, ents, now=now, profile=pl.profile, context=pl.context))
-            except CareError as e:
-                out.append(str(e))
-        return out
+    (``workers``; default: the CPU count, at most 8); the result is the same."""
     if workers is None:
         workers = min(8, os.cpu_count() or 1) if len(jobs) >= PARALLEL_FROM else 1
     if workers > 1 and jobs:

@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from datetime import datetime, timedelta, timezone, tzinfo
 from typing import Any
 
+from clinic.care.codes import lapsed
 from clinic.records.values import parse_utc
 from clinic.reports.month import Month
 
@@ -140,6 +141,12 @@ _ENTRY_TIMES = ("occurred_at", "born_at", "given_at", "sampled_at")
 
 def eligible(item) -> bool:
     return item is not None and attr(item, "state") != "not-needed"
+
+
+def planned(item) -> bool:
+    """Eligible, or planned and later closed as no longer needed (the choice it informed is gone):
+    such an item stays in a coverage denominator, as not done, and is never counted as missed."""
+    return eligible(item) or (item is not None and lapsed(attr(item, "state"), attr(item, "reason")))
 
 
 def done(item) -> bool:

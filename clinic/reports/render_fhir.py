@@ -9,7 +9,7 @@ measureScore (absent when the denominator is 0). No names.
 Patient, Observation (ABO/RhD typing, antibody screen, titre, fetal RHD, FMH test, baby's
 RhD, sensitising events that are not procedures), MedicationAdministration (anti-D, dose in
 IU, lot and expiry in a contained Medication) and Procedure (invasive sensitising
-procedures). It carries names: only for roles in clinic.config.ROLES_SEEING_NAMES.
+procedures). It carries names: only for roles with the follow-up permission (clinic.accounts.roles.FOLLOW_UP).
 
 The output is plain JSON-able dicts; the tests validate it with the fhir.resources library.
 Where no standard code could be checked, a code of our own system (``SYS_OWN``) is used

@@ -7,6 +7,7 @@ from clinic.records.envelope import fields_of
 from clinic.store.check import CheckReport
 from clinic.store.errors import (
     BackupInvalid,
+    BackupRefused,
     Conflict,
     NotFound,
     StoreBusy,
@@ -17,5 +18,6 @@ from clinic.store.errors import (
 from clinic.store.records_api import Created
 from clinic.store.store import Store
 
-__all__ = ["Store", "StoreError", "StoreCorrupt", "NotFound", "Conflict", "BackupInvalid", "StoreBusy",
-           "StoreUnwritable", "CheckReport", "Created", "fields_of"]
+__all__ = ["Store", "StoreError", "StoreCorrupt", "NotFound", "Conflict", "BackupInvalid", "BackupRefused",
+           "StoreBusy", "StoreUnwritable",
+           "CheckReport", "Created", "fields_of"]

@@ -6,16 +6,57 @@ month of the change, so each file stays small and an append touches one file onl
 from __future__ import annotations
 
 import json
+import os
+import re
+import threading
 from pathlib import Path
 from typing import Iterator
 
 from clinic.store.storage import append_line
+
+# The first "at" of a line is the entry's own (keys are sorted: action, at, by, changes, ...).
+_AT = re.compile(rb'"at":"([0-9T:Z-]{20})"')
 
 
 class AuditLog:
     def __init__(self, root: Path, on_corrupt):
         self.root = Path(root)
         self._on_corrupt = on_corrupt
+        self._latest: dict[Path, tuple[int, int, str]] = {}  # file -> (inode, bytes read, latest at)
+        self._latest_lock = threading.Lock()
+
+    def latest_at(self) -> str | None:
+        """The latest ``at`` of any line: when the store last changed, by the clock that wrote it.
+
+        Only the newest month's files can hold it (a line goes to the file of its own month);
+        they are read incrementally, so asking on every page costs a stat or two."""
+        files = self.files()
+        if not files:
+            return None
+        top = max(p.stem for p in files)
+        found = [self._latest_in(p) for p in files if p.stem == top]
+        return max((f for f in found if f), default=None)
+
+    def _latest_in(self, path: Path) -> str:
+        with self._latest_lock:
+            try:
+                fh = open(path, "rb")
+            except FileNotFoundError:
+                return ""
+            with fh:
+                st = os.fstat(fh.fileno())
+                ino, done, best = self._latest.get(path, (st.st_ino, 0, ""))
+                if ino != st.st_ino or st.st_size < done:
+                    done, best = 0, ""
+                fh.seek(done)
+                raw = fh.read()
+            end = raw.rfind(b"\n") + 1  # a torn last line is read when it is complete
+            for line in raw[:end].split(b"\n"):
+                m = _AT.search(line)
+                if m and m.group(1).decode() > best:
+                    best = m.group(1).decode()
+            self._latest[path] = (st.st_ino, done + end, best)
+            return best
 
     def path_for(self, facility: str, at: str) -> Path:
         return self.root / facility / f"{at[:7]}.jsonl"

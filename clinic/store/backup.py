@@ -1,9 +1,17 @@
 """Backups: a gzipped tar of the store files with a SHA-256 manifest inside and a checksum beside.
 
 ``<data>/backups/rhledger-<label>-<UTC stamp>.tar.gz`` holds ``records/``, ``audit/``,
-``config.toml``, ``BACKUP.json`` (when, which facility, schema version) and
-``MANIFEST.sha256`` (``sha256sum`` format, one line per file). ``<archive>.sha256`` beside it
-is the checksum of the whole archive. Restore verifies both before it replaces anything.
+``config.toml``, ``BACKUP.json`` (when, which facility, schema version),
+``MANIFEST.sha256`` (``sha256sum`` format, one line per file) and ``MANIFEST.cose``: the
+facility key's COSE_Sign1 signature over {facility, created_at, SHA-256 of the manifest}.
+``<archive>.sha256`` beside it is the checksum of the whole archive. Restore verifies all
+three before it replaces anything.
+
+Checksums find damage; only the signature proves where a backup came from: anyone can
+recompute a manifest after changing a file, nobody else can sign it. Signing and checking are
+the facility key's (``clinic.signing``, a peer of the store): the store is handed a ``Seal``
+(``clinic.signing.seal.BackupSeal``) by whoever opens it, and without one writes unsigned
+backups and restores without checking where one came from (``origin_notes``).
 """
 from __future__ import annotations
 
@@ -13,19 +21,39 @@ import json
 import os
 import shutil
 import tarfile
-from datetime import datetime, timedelta, timezone
+from dataclasses import dataclass, field
+from datetime import date, datetime, timedelta, timezone
 from pathlib import Path, PurePosixPath
+from typing import Protocol
 
-from clinic.store.errors import BackupInvalid
+from clinic.store.errors import BackupInvalid, BackupRefused
 from clinic.store.storage import atomic_write_bytes, ensure_dir, fsync_dir
 
 BACKUP_DIR = "backups"
 STORE_DIRS = ("records", "audit")
 EXTRA_FILES = ("config.toml",)
 MANIFEST = "MANIFEST.sha256"
+SIGNATURE = "MANIFEST.cose"
 INFO = "BACKUP.json"
 PREFIX = "rhledger-"
 SUFFIX = ".tar.gz"
+
+
+class Seal(Protocol):
+    """Signing and checking a backup with the facility key (``clinic.signing.seal.BackupSeal``)."""
+
+    def has_key(self) -> bool:
+        """Whether this installation has a facility key (so its backups are signed)."""
+        ...
+
+    def sign(self, payload: bytes) -> bytes | None:
+        """A COSE_Sign1 message over ``payload``; None when there is no facility key."""
+        ...
+
+    def check(self, message: bytes, on_date: date | None) -> tuple[str, str | None, bytes, str]:
+        """(state, facility, payload, reason): state ``trusted`` (this facility's key, current or
+        retired, or a key of the trust list, valid on ``on_date``), ``unknown-issuer`` or ``altered``."""
+        ...
 
 
 def sha256_bytes(b: bytes) -> str:
@@ -81,9 +109,16 @@ def newest_backup(data_dir: Path) -> Path | None:
     return found[-1] if found else None
 
 
+def _seal_payload(facility: str, created_at: str, manifest: bytes) -> bytes:
+    return json.dumps({"format": 1, "facility": facility, "created_at": created_at,
+                       "manifest_sha256": sha256_bytes(manifest)}, sort_keys=True).encode()
+
+
 def make_backup(data_dir: Path, *, label: str = "backup", keep: int | None = None,
-                now: datetime | None = None, facility: str = "", schema: int | None = None) -> Path:
-    """Write one backup; call with the store lock held. Prunes to the newest ``keep`` of ``label``."""
+                now: datetime | None = None, facility: str = "", schema: int | None = None,
+                seal: Seal | None = None) -> Path:
+    """Write one backup; call with the store lock held. Prunes to the newest ``keep`` of ``label``.
+    Signed with ``seal`` (the facility key) when given and this installation has a key."""
     data_dir = Path(data_dir)
     now = now or datetime.now(timezone.utc)
     root = data_dir / BACKUP_DIR
@@ -101,7 +136,8 @@ def make_backup(data_dir: Path, *, label: str = "backup", keep: int | None = Non
         # 0600: a backup holds names and the account password hashes.
         fd = os.open(tmp, os.O_WRONLY | os.O_CREAT | os.O_TRUNC, 0o600)
         with os.fdopen(fd, "wb") as raw, tarfile.open(fileobj=raw, mode="w:gz") as tar:
-            info = json.dumps({"format": 1, "created_at": now.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ"),
+            created_at = now.astimezone(timezone.utc).strftime("%Y-%m-%dT%H:%M:%SZ")
+            info = json.dumps({"format": 1, "created_at": created_at,
                                "facility": facility, "schema": schema, "label": label}, indent=1).encode()
             _add(tar, INFO, info, now)
             manifest.append(f"{sha256_bytes(info)}  {INFO}")
@@ -110,7 +146,11 @@ def make_backup(data_dir: Path, *, label: str = "backup", keep: int | None = Non
                 name = PurePosixPath(*rel.parts).as_posix()
                 _add(tar, name, content, now)
                 manifest.append(f"{sha256_bytes(content)}  {name}")
-            _add(tar, MANIFEST, ("\n".join(manifest) + "\n").encode(), now)
+            manifest_bytes = ("\n".join(manifest) + "\n").encode()
+            _add(tar, MANIFEST, manifest_bytes, now)
+            signed = seal.sign(_seal_payload(facility, created_at, manifest_bytes)) if seal is not None else None
+            if signed is not None:
+                _add(tar, SIGNATURE, signed, now)
             tar.close()
             raw.flush()
             os.fsync(raw.fileno())
@@ -145,12 +185,30 @@ def prune(data_dir: Path, keep: int, label: str = "backup") -> list[Path]:
     return removed
 
 
+@dataclass
+class Archive:
+    """A backup read and checked against its checksums: the store files by relative name,
+    BACKUP.json, the manifest and its signature (None when unsigned), and notes."""
+
+    files: dict[str, bytes]
+    info: dict
+    manifest: bytes
+    signature: bytes | None
+    notes: list[str] = field(default_factory=list)
+
+
 def read_verified(backup_file: Path) -> tuple[dict[str, bytes], dict, list[str]]:
     """Every file of a backup, after checking the archive checksum and each file's SHA-256.
 
     Returns (files by relative name, BACKUP.json, notes). Raises BackupInvalid naming what
-    does not match; nothing is written anywhere.
+    does not match; nothing is written anywhere. Where it came from is ``origin_notes``'s.
     """
+    a = read_archive(backup_file)
+    return a.files, a.info, a.notes
+
+
+def read_archive(backup_file: Path) -> Archive:
+    """``read_verified`` keeping the manifest and its signature."""
     backup_file = Path(backup_file)
     notes: list[str] = []
     if not backup_file.is_file():
@@ -174,7 +232,7 @@ def read_verified(backup_file: Path) -> tuple[dict[str, bytes], dict, list[str]]
                 name = m.name
                 p = PurePosixPath(name)
                 if (not m.isfile() or p.is_absolute() or ".." in p.parts
-                        or (p.parts[0] not in STORE_DIRS and name not in EXTRA_FILES + (MANIFEST, INFO))):
+                        or (p.parts[0] not in STORE_DIRS and name not in EXTRA_FILES + (MANIFEST, INFO, SIGNATURE))):
                     raise BackupInvalid(f"{backup_file} holds an unexpected entry {name!r}; not a rhledger backup")
                 fh = tar.extractfile(m)
                 files[name] = fh.read() if fh is not None else b""
@@ -182,8 +240,10 @@ def read_verified(backup_file: Path) -> tuple[dict[str, bytes], dict, list[str]]
         raise BackupInvalid(f"{backup_file} cannot be read as a backup archive ({e}); nothing was restored") from None
     if MANIFEST not in files or INFO not in files:
         raise BackupInvalid(f"{backup_file} has no {MANIFEST} or {INFO}: not a rhledger backup")
+    signature = files.pop(SIGNATURE, None)
+    manifest = files.pop(MANIFEST)
     listed: dict[str, str] = {}
-    for line in files.pop(MANIFEST).decode("utf-8", errors="replace").splitlines():
+    for line in manifest.decode("utf-8", errors="replace").splitlines():
         if not line.strip():
             continue
         digest, _, name = line.partition("  ")
@@ -201,7 +261,77 @@ def read_verified(backup_file: Path) -> tuple[dict[str, bytes], dict, list[str]]
         info = json.loads(files.pop(INFO))
     except ValueError:
         raise BackupInvalid(f"{backup_file}: {INFO} does not parse") from None
-    return files, info, notes
+    if not isinstance(info, dict):
+        raise BackupInvalid(f"{backup_file}: {INFO} is not an object")
+    return Archive(files, info, manifest, signature, notes)
+
+
+def origin_notes(a: Archive, name: str, *, seal: Seal | None, here: str | None,
+                 from_facility: str | None = None, unverified: bool = False) -> list[str]:
+    """Where a backup came from, proven by its signature; raises before anything is restored.
+
+    ``here``: this installation's facility (None when it has no settings yet). A backup signed
+    by a key that no longer matches its manifest is refused (BackupInvalid). Refused unless the
+    caller says so (BackupRefused, naming the option): a backup of another facility
+    (``from_facility`` = its ID), and, on an installation with a facility key, one that is not
+    signed or signed by a key it does not know (``unverified``). Returns notes to show.
+    """
+    notes: list[str] = []
+    claimed = a.info.get("facility") or None
+    origin = claimed
+    if a.signature is None:
+        if seal is not None and seal.has_key() and not unverified:
+            raise BackupRefused(
+                f"{name} is not signed, so nothing proves where it came from (it was made by an older "
+                f"rhledger, or its signature was removed). Nothing was restored. If you made it yourself "
+                f"and trust it, restore it with --unverified")
+        notes.append("this backup is not signed: where it came from cannot be proven")
+    elif seal is None:
+        notes.append("the backup's signature was not checked")
+    else:
+        day = _created_day(a.info.get("created_at"))
+        state, signer, payload, reason = seal.check(a.signature, day)
+        if state == "altered":
+            raise BackupInvalid(f"{name} has been altered: its signature does not match ({reason}); "
+                                f"nothing was restored")
+        if state != "trusted":
+            if not unverified:
+                raise BackupRefused(
+                    f"{name} is signed by a key this installation does not know ({reason}). Nothing was "
+                    f"restored. Import the district's newest trust list and try again, or, if you are sure "
+                    f"where it came from, restore it with --unverified")
+            notes.append(f"the backup's signer is not known here ({reason}); restored as asked (--unverified)")
+        else:
+            try:
+                sealed = json.loads(payload)
+            except ValueError:
+                sealed = {}
+            if not isinstance(sealed, dict) or sealed.get("manifest_sha256") != sha256_bytes(a.manifest):
+                raise BackupInvalid(f"{name} has been altered: its manifest is not the one {signer} signed "
+                                    f"(recomputed after a change); nothing was restored")
+            if sealed.get("facility") != signer or (claimed and claimed != signer):
+                raise BackupInvalid(f"{name} says it is a backup of {claimed!r} but is signed by the key of "
+                                    f"{signer!r}; nothing was restored")
+            origin = signer
+            notes.append(f"signed by {signer}'s facility key: {reason}")
+    if from_facility and from_facility != origin:
+        raise BackupRefused(f"{name} is a backup of {origin or 'an unnamed facility'}, not of {from_facility} "
+                            f"(--from-facility); nothing was restored")
+    if origin and here and origin != here and from_facility != origin:
+        raise BackupRefused(
+            f"{name} is a backup of another facility, {origin}, not of this installation ({here}): restoring "
+            f"it would replace {here}'s records by {origin}'s. Nothing was restored. If that is what you mean, "
+            f"restore it with --from-facility {origin}")
+    if origin and here and origin != here:
+        notes.append(f"restored a backup of {origin} into the installation of {here}, as asked (--from-facility)")
+    return notes
+
+
+def _created_day(text) -> date | None:
+    try:
+        return datetime.fromisoformat(str(text).replace("Z", "+00:00")).date()
+    except ValueError:
+        return None
 
 
 def install(data_dir: Path, files: dict[str, bytes]) -> None:

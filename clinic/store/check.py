@@ -81,12 +81,14 @@ class Checking(Writer):
                 rep.notes.append(f"index line for {rid} points at {partition}, which does not hold it "
                                  f"(an interrupted write; harmless)")
             elif seen[rid][0] != partition:
-                rep.problems.append(f"record {rid} is in {seen[rid][0]} but the index says {partition}")
+                rep.problems.append(f"record {rid} is in {seen[rid][0]} but the index says {partition} "
+                                    f"(run `rhledger check --repair` to rebuild it)")
 
     def _check_records(self, rep: CheckReport, seen: dict[str, tuple[str, dict]], now: datetime) -> None:
         for rid, (part, rec) in seen.items():
             if rid not in self._index.locs:
-                rep.problems.append(f"record {rid} in {part} is missing from the index")
+                rep.problems.append(f"record {rid} in {part} is missing from the index "
+                                    f"(run `rhledger check --repair` to rebuild it)")
             kind = rec.get("kind")
             fac = rec.get("facility", "?")
             rep.counts.setdefault(fac, {}).setdefault(kind, 0)
@@ -115,7 +117,8 @@ class Checking(Writer):
             try:
                 for entry in self._audit.read(path):
                     rep.audit_lines += 1
-                    audited.add((entry.get("id"), entry.get("version")))
+                    if entry.get("action") != "import-declined":  # a copy not taken in stores nothing
+                        audited.add((entry.get("id"), entry.get("version")))
             except StoreCorrupt as e:
                 rep.problems.append(_unparsed(e))
         for rid, (part, rec) in seen.items():

@@ -43,25 +43,31 @@ class IndexLog:
         self.by_kind: dict[str, list[str]] = {}  # kind -> ids, creation order
         self.children: dict[str, list[str]] = {}  # pregnancy id -> entry ids
         self.pregnancies_of: dict[str, list[str]] = {}  # woman id -> pregnancy ids
+        self.per_partition: dict[str, int] = {}  # partition -> ids the log places there
         self._strings: dict[str, str] = {}  # one copy of each partition, kind and parent id
         self._snapshot_offset = 0  # where the newest snapshot (index_snapshot) ends
 
-    def refresh(self) -> None:
-        """Read what other processes appended since the last call."""
+    def refresh(self) -> bool:
+        """Read what other processes appended since the last call. True when the log was read
+        again from the start because it was replaced, cut or removed (a restore, a repair, or
+        damage: the caller checks it against the partitions)."""
         try:
             fh = open(self.path, "rb")
         except FileNotFoundError:
             if self._inode is not None:
                 self._reset()
-            return
+                return True
+            return False
+        restarted = False
         with fh:
             st = os.fstat(fh.fileno())
             if st.st_ino != self._inode or st.st_size < self._offset:
+                restarted = self._inode is not None
                 self._reset()  # replaced (restore) or cut: read it again from the start
                 self._inode = st.st_ino
                 index_snapshot.load(self, fh, st)  # or from a snapshot of it that still matches
             if st.st_size == self._offset:
-                return
+                return restarted
             fh.seek(self._offset)
             left = st.st_size - self._offset
             carry = b""
@@ -81,10 +87,12 @@ class IndexLog:
                     carry = block[end + 1:]
         # A torn last line (no newline yet) stays unread until it is completed or trimmed.
         index_snapshot.save_if_due(self)
+        return restarted
 
     def _add_lines(self, lines: list[str], offset: int) -> None:
         locs, order, strings = self.locs, self.order, self._strings
         children, pregnancies_of, by_kind = self.children, self.pregnancies_of, self.by_kind
+        per_partition = self.per_partition
         share = strings.setdefault
         for n, line in enumerate(lines):
             parts = line.split(" ")
@@ -101,6 +109,7 @@ class IndexLog:
             if kind == "pregnancy" or kind == "woman":
                 rid = share(rid, rid)  # the parent id of later lines: one string object for all
             locs[rid] = (partition, kind, wid, pid)
+            per_partition[partition] = per_partition.get(partition, 0) + 1
             order.append(rid)
             ids = by_kind.get(kind)
             if ids is None:

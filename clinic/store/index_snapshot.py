@@ -22,7 +22,7 @@ from pathlib import Path
 from clinic.store.storage import atomic_write_bytes, gc_paused
 
 SNAPSHOT_FILE = ".index.snapshot"
-FORMAT = 1
+FORMAT = 2
 EVERY = 4 << 20     # 4 MiB of log lines (about 40,000 records) between snapshots
 TAIL = 64
 HEAD = 64 << 10
@@ -55,7 +55,8 @@ def load(index, fh, st: os.stat_result) -> bool:
         return False   # damaged or from another version: parse the log instead
     if fmt != FORMAT or inode != st.st_ino or not 0 < offset <= st.st_size or _tail(fh, offset) != tail:
         return False
-    index.locs, index.order, index.by_kind, index.children, index.pregnancies_of, index._strings = state
+    (index.locs, index.order, index.by_kind, index.children, index.pregnancies_of, index.per_partition,
+     index._strings) = state
     index._inode, index._offset, index._snapshot_offset = inode, offset, offset
     return True
 
@@ -69,7 +70,8 @@ def save_if_due(index) -> None:
             if os.fstat(fh.fileno()).st_ino != index._inode:
                 return
             tail = _tail(fh, index._offset)
-        state = (index.locs, index.order, index.by_kind, index.children, index.pregnancies_of, index._strings)
+        state = (index.locs, index.order, index.by_kind, index.children, index.pregnancies_of, index.per_partition,
+                 index._strings)
         atomic_write_bytes(path_for(index), marshal.dumps((FORMAT, index._inode, index._offset, tail, state)))
     except OSError:
         return   # a cache: the next open parses the log, and that is all

@@ -24,6 +24,12 @@ from clinic.store.storage import TABLE, file_key
 from clinic.store.writer import Writer, copy_record
 
 
+def _change_time(current: Mapping[str, Any], now: datetime) -> str:
+    """When an amendment or void is recorded: now, but never before the record's own times (a
+    clock that runs behind must not date a change before what it changes)."""
+    return max(utc_text(now), current.get("created_at") or "", current.get("amended_at") or "")
+
+
 @dataclass(frozen=True)
 class Created:
     """What ``Store.create`` did: ``record`` as stored, and ``created`` False when this id was
@@ -140,7 +146,7 @@ class RecordsAPI(Writer):
                        for k in sorted(set(old) | set(merged)) if old.get(k) != merged.get(k)}
             if not changes:
                 return copy_record(current)
-            at = utc_text(now)
+            at = _change_time(current, now)
             record = {**{k: v for k, v in current.items() if k in ENVELOPE_FIELDS}, **merged}
             record.update(version=current["version"] + 1, amended_at=at, amended_by=by,
                           amendments=list(current.get("amendments") or [])
@@ -160,7 +166,7 @@ class RecordsAPI(Writer):
             if current.get("voided"):
                 raise Conflict(f"record {record_id} is already voided ({current.get('voided_reason')})",
                                current_version=current["version"])
-            at = utc_text(now)
+            at = _change_time(current, now)
             changes = {"voided": {"old": False, "new": True}, "voided_reason": {"old": None, "new": reason}}
             record = dict(current)
             record.update(voided=True, voided_reason=reason, version=current["version"] + 1,
@@ -274,6 +280,12 @@ class RecordsAPI(Writer):
             key, data, fresh = self._pcache.scan_keyed(self._ppath(partition))
         docs = [d for d in (data or {}).get(TABLE, {}).values() if isinstance(d, dict) and "id" in d]
         return key, (docs if fresh else [copy_record(d) for d in docs])
+
+    def latest_change(self) -> str | None:
+        """UTC text of the latest change recorded here (create, amend, void, import), by the clock
+        that recorded it; None for an empty store. A clock now behind it has been set back."""
+        with self._tlock:
+            return self._audit.latest_at()
 
     def iter_records(self, kind: str | None = None, since: str | None = None,
                      facility: str | None = None) -> Iterator[dict]:

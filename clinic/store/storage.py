@@ -119,13 +119,19 @@ def append_lines(path: Path, lines: list[str]) -> None:
     ensure_dir(path.parent)
     data = "".join(line.rstrip("\n") + "\n" for line in lines).encode("utf-8")
     new = not path.exists()
-    with open(path, "a+b") as fh:
+    # 0600 like the partitions: the audit log and the index hold names and clinical changes.
+    with open(path, "a+b", opener=_private_opener) as fh:
         _trim_torn_tail(fh, path)
         fh.write(data)
         fh.flush()
         os.fsync(fh.fileno())
     if new:
         fsync_dir(path.parent)
+
+
+def _private_opener(path: str, flags: int) -> int:
+    """os.open making a new file readable by the owner only (an existing file keeps its mode)."""
+    return os.open(path, flags, 0o600)
 
 
 def _trim_torn_tail(fh, path: Path) -> None:

@@ -25,11 +25,11 @@ from tinydb import TinyDB
 
 from clinic.config import Settings, load_settings
 from clinic.store.audit import AuditLog
-from clinic.store.errors import StoreBusy, StoreCorrupt
+from clinic.store.errors import StoreBusy, StoreCorrupt, unwritable
 from clinic.store.index import IndexLog, Loc
 from clinic.store.journal import JOURNAL_FILE, Journal
 from clinic.store.layout import AUDIT_DIR, INDEX_FILE, LOCK_FILE, META_FILE, RECORDS_DIR, VERIFIED_FILE, partition_for
-from clinic.store.opening import corrupt_error, load_verified
+from clinic.store.opening import corrupt_error, ensure_index, load_verified
 from clinic.store.storage import (
     TABLE,
     AtomicJSONStorage,
@@ -39,7 +39,6 @@ from clinic.store.storage import (
     ensure_dir,
     file_key,
 )
-from clinic.store.unwritable import translated
 
 # (the local copy or None, the incoming record) -> (outcome, the audit entry when it is to be stored)
 Decide = Callable[[dict | None, dict], tuple[str, dict | None]]
@@ -80,7 +79,10 @@ class Writer:
         self.meta_path = self.records_dir / META_FILE
         self._tlock = threading.RLock()
         self._depth = 0
-        ensure_dir(self.data_dir)
+        try:
+            ensure_dir(self.data_dir)
+        except OSError as e:
+            raise unwritable(e, self.data_dir) or e from None
         self._flock = filelock.FileLock(str(self.data_dir / LOCK_FILE), thread_local=False)
         self._pcache = PartitionCache(cache_partitions, on_corrupt=self._corrupt)
         self._index = IndexLog(self.records_dir / INDEX_FILE, on_corrupt=self._corrupt)
@@ -96,8 +98,21 @@ class Writer:
 
     @contextmanager
     def _locked(self):
-        """The thread lock, then (once per thread nesting) the cross-process file lock."""
-        with self._tlock, translated(self.data_dir):  # a full disk or a read-only folder: StoreUnwritable
+        """The thread lock, then (once per thread nesting) the cross-process file lock.
+
+        A full disk or a read-only folder met inside becomes StoreUnwritable, in plain words."""
+        try:
+            with self._locked_inner():
+                yield
+        except OSError as e:
+            u = unwritable(e, self.data_dir)
+            if u is None:
+                raise
+            raise u from e
+
+    @contextmanager
+    def _locked_inner(self):
+        with self._tlock:
             if self._depth == 0:
                 try:
                     self._flock.acquire(timeout=self.lock_timeout)
@@ -137,7 +152,10 @@ class Writer:
         return self.records_dir / f"{partition}.json"
 
     def _refresh(self) -> None:
-        self._index.refresh()
+        if self._index.refresh():
+            # The log was replaced, cut or removed under us: never read on from a short index.
+            with self._locked():
+                self.recovered += ensure_index(self.records_dir, self._index, self._pcache)
 
     def _get(self, rid: str) -> dict | None:
         """The cached record itself (not a copy: callers copy before handing it out)."""
@@ -237,10 +255,11 @@ class Writer:
             self._index.append_many(new_locs)
         outcomes: list[str | None] = [None] * len(incoming)
         audit_lines: dict[Path, list[tuple[int, str]]] = {}
-        written: list[Path] = []
+        written: list[tuple[Path, int]] = []
         for part, positions in by_part.items():
-            if self._rewrite_partition(part, positions, incoming, decide, outcomes, audit_lines):
-                written.append(self._ppath(part))
+            n = self._rewrite_partition(part, positions, incoming, decide, outcomes, audit_lines)
+            if n is not None:
+                written.append((self._ppath(part), n))
         # The audit lines in the order one write at a time would have appended them.
         for apath, lines in audit_lines.items():
             lines.sort(key=lambda t: t[0])
@@ -250,8 +269,10 @@ class Writer:
         return outcomes  # type: ignore[return-value]  # every position is in one partition
 
     def _rewrite_partition(self, part: str, positions: list[int], incoming: list[dict], decide: Decide,
-                           outcomes: list[str | None], audit_lines: dict[Path, list[tuple[int, str]]]) -> bool:
-        """Decide the batch's records of one partition and rewrite it once; True when it was."""
+                           outcomes: list[str | None],
+                           audit_lines: dict[Path, list[tuple[int, str]]]) -> int | None:
+        """Decide the batch's records of one partition and rewrite it once; the number of records
+        it holds when it was rewritten, else None."""
         path = self._ppath(part)
         data = self._pcache.load(path) or {}
         table = dict(data.get(TABLE, {}))  # doc id -> record; the cached one is left as it is
@@ -275,7 +296,7 @@ class Writer:
             chunk.append((apath, line))
             audit_lines.setdefault(apath, []).append((i, line))
         if not chunk:
-            return False
+            return None
         new_data = {**data, TABLE: table}
         payload = json.dumps(new_data, ensure_ascii=False, separators=(",", ":")).encode("utf-8")
         self._journal.chunk(part, chunk)
@@ -285,17 +306,17 @@ class Writer:
             self._pcache.drop(path)
             raise
         self._pcache.stored(path, new_data)
-        return True
+        return len(table)
 
-    def _mark_verified(self, paths: list[Path]) -> None:
+    def _mark_verified(self, paths: list[tuple[Path, int]]) -> None:
         """Add partitions this process just wrote (from its own serialised JSON) to the open-time
         verification cache, so the next open does not parse a whole import's partitions again."""
         if not paths:
             return
         try:
             seen = load_verified(self.records_dir)
-            for p in paths:
-                seen[p.relative_to(self.records_dir).as_posix()] = list(file_key(p.stat()))
+            for p, n in paths:
+                seen[p.relative_to(self.records_dir).as_posix()] = list(file_key(p.stat())) + [n]
             atomic_write_bytes(self.records_dir / VERIFIED_FILE, json.dumps(seen, separators=(",", ":")).encode())
         except OSError:
             pass  # only a cache: without it the next open parses these files, and that is all

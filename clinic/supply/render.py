@@ -7,6 +7,7 @@ import json
 from datetime import date, timedelta
 from typing import Any
 
+from clinic.records.csv_cells import LINE_END, safe_dict
 from clinic.supply.report import ProductRow, SupplyReport
 from clinic.supply.stock_plan import StockPlan
 
@@ -81,21 +82,22 @@ def json_text(rep: SupplyReport) -> str:
 def csv_text(rep: SupplyReport) -> str:
     """One row per facility and product ("product"), per week ("week"), and per transfer ("transfer")."""
     buf = io.StringIO()
-    w = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator="\n")
+    # Lot numbers and names are typed at clinics: no cell may be a spreadsheet formula.
+    w = csv.DictWriter(buf, fieldnames=CSV_COLUMNS, lineterminator=LINE_END)
     w.writeheader()
     doc = to_dict(rep)
     for f in doc["facilities"]:
         base = {"facility": f["facility"], "facility_name": f["name"]}
         for p in f["products"]:
             prod = {**base, "product": p["product"], "vial_iu": p["vial_iu"]}
-            w.writerow({"record": "product", **prod, **{k: p[k] for k in (
+            w.writerow(safe_dict({"record": "product", **prod, **{k: p[k] for k in (
                 "expected_vials", "upper_vials", "on_hand_vials", "expiring_unused_vials", "stockout_date",
-                "order_vials", "order_by")}})
+                "order_vials", "order_by")}}))
             for wk in p["weeks"]:
-                w.writerow({"record": "week", **prod, "week": wk["week"], "week_start": wk["start"],
-                            "expected_vials": wk["expected_vials"], "upper_vials": wk["upper_vials"]})
+                w.writerow(safe_dict({"record": "week", **prod, "week": wk["week"], "week_start": wk["start"],
+                                      "expected_vials": wk["expected_vials"], "upper_vials": wk["upper_vials"]}))
     for t in doc["transfers"]:
-        w.writerow({"record": "transfer", "facility": t["from"], "facility_name": t["from_name"],
-                    "product": t["product"], "vial_iu": t["vial_iu"], "lot": t["lot"], "expiry": t["expiry"],
-                    "vials": t["vials"], "from": t["from"], "to": t["to"], "arrives": t["arrives"]})
+        w.writerow(safe_dict({"record": "transfer", "facility": t["from"], "facility_name": t["from_name"],
+                              "product": t["product"], "vial_iu": t["vial_iu"], "lot": t["lot"], "expiry": t["expiry"],
+                              "vials": t["vials"], "from": t["from"], "to": t["to"], "arrives": t["arrives"]}))
     return buf.getvalue()

@@ -37,14 +37,20 @@ def _secret_key(data_dir: Path) -> str:
 
 def create_app(data_dir=None, test_config=None) -> Flask:
     """Build the app for one data directory (argument, else $RHLEDGER_DATA, else ./instance)."""
+    from clinic.signing.seal import BackupSeal
     from clinic.store import Store
+    from clinic.store.errors import unwritable
 
     app = Flask(__name__, static_folder=str(STATIC_DIR), static_url_path="/static")
+    # "//" in a path is not quietly redirected (an API client gets a 404 with a message instead).
+    app.url_map.merge_slashes = False
     data = data_dir_from(data_dir or (test_config or {}).get("DATA_DIR")).resolve()
     app.config.from_mapping(
         DATA_DIR=str(data),
         SESSION_COOKIE_HTTPONLY=True,
         SESSION_COOKIE_SAMESITE="Lax",
+        # Secure (HTTPS only) is switched on by `serve --lan` (clinic.web.lan.serve_https).
+        SESSION_COOKIE_SECURE=False,
         PERMANENT_SESSION_LIFETIME=timedelta(hours=12),
         JSON_SORT_KEYS=False,
         MAX_CONTENT_LENGTH=2 * 1024 * 1024,
@@ -53,24 +59,46 @@ def create_app(data_dir=None, test_config=None) -> Flask:
         app.config.update(test_config)
     settings = load_settings(data)
     if not app.config.get("SECRET_KEY"):
-        app.config["SECRET_KEY"] = _secret_key(data)
-    store = Store(data, settings)
+        try:
+            app.config["SECRET_KEY"] = _secret_key(data)
+        except OSError as e:  # a read-only or full data folder: say so, no traceback at start-up
+            raise unwritable(e, data) or e from None
+    store = Store(data, settings, seal=BackupSeal(data))
+    from clinic.accounts.users import LockPolicy, UserStore
+    from clinic.store.permissions import check_modes
+
+    users = UserStore(data, legacy=settings.accounts, policy=LockPolicy(settings.lock_after, settings.lock_minutes))
+    warnings = check_modes(data)
+    for w in warnings:
+        app.logger.warning("rhledger: %s", w)
     from clinic.reports.case_cache import CaseCache
-    from clinic.reports.plan_cache import PlanCache
 
-    app.extensions["rhledger"] = {"settings": settings, "store": store, "plans": PlanCache(), "cases": CaseCache()}
-    from clinic.web.housekeeping import backup_once
+    app.extensions["rhledger"] = {"settings": settings, "store": store, "users": users,
+                                  "file_warnings": warnings, "cases": CaseCache()}
+    store.daily_backup_if_due()
 
-    backup_once(store)  # a full disk must not keep the records from being read: reported, retried hourly
-
-    from clinic.web import api, auth, db, helpers, pages, records_views, stock, tools_views
+    from clinic.web import (
+        admin_views,
+        api,
+        auth,
+        db,
+        errors,
+        headers,
+        helpers,
+        pages,
+        records_views,
+        stock,
+        tools_views,
+    )
 
     db.init_app(app)
     auth.init_app(app)
+    headers.init_app(app)
     helpers.init_app(app)
     stock.init_app(app)
-    pages.register_errors(app)
+    errors.init_app(app)
     app.register_blueprint(auth.bp)
+    app.register_blueprint(admin_views.bp)
     app.register_blueprint(pages.bp)
     app.register_blueprint(records_views.bp)
     app.register_blueprint(tools_views.bp)

@@ -66,7 +66,7 @@ _YES = ("yes", "on", "true", "1")
 _NO = ("no", "off", "false", "0")
 
 
-def _yes_no(args, name, default: bool) -> bool:
+def _yes_no(args, name, default: bool | None) -> bool | None:
     """A yes/no input (a checkbox sends "on"); empty: ``default``; anything else is refused."""
     v = (args.get(name) or "").strip().lower()
     if not v:
@@ -78,14 +78,22 @@ def _yes_no(args, name, default: bool) -> bool:
     raise CareInputError(name, f"{v!r} is not yes or no")
 
 
+# Dates a calculator accepts: far beyond any pregnancy, far inside what date arithmetic can hold.
+DATE_MIN, DATE_MAX = date(1900, 1, 1), date(2199, 12, 31)
+
+
 def _date(args, name):
     v = (args.get(name) or "").strip()
     if not v:
         return None
     try:
-        return date.fromisoformat(v)
+        d = date.fromisoformat(v)
     except ValueError:
         raise CareInputError(name, f"{v!r} is not a date (YYYY-MM-DD)") from None
+    if not DATE_MIN <= d <= DATE_MAX:
+        raise CareInputError(name, f"{v} is outside the dates a calculator works with "
+                                   f"({DATE_MIN.isoformat()} to {DATE_MAX.isoformat()})")
+    return d
 
 
 def run_mca(args):
@@ -120,8 +128,10 @@ def run_event_dose(args):
     from clinic.care.calc import event_dose
 
     kind = _choice(args, "kind", EVENT_KINDS)
-    ongoing = _yes_no(args, "ongoing", False)
-    return event_dose(kind, _ga(args), get_profile(), products=get_settings().products, ongoing=ongoing)
+    ongoing = bool(_yes_no(args, "ongoing", False))
+    # Not answered (left out) is not "no": the dose is then proposed on the condition.
+    facts = {name: _yes_no(args, name, None) for name in ("bleeding_heavy", "bleeding_repeated", "abdominal_pain")}
+    return event_dose(kind, _ga(args), get_profile(), products=get_settings().products, ongoing=ongoing, **facts)
 
 
 def run_fetal_rhd(args):
@@ -207,6 +217,9 @@ CALCULATORS: dict[str, dict] = {
     "event-dose": {"title": "Anti-D for a sensitising event", "dose": True, "run": run_event_dose, "inputs": (
         _inp("kind", "Event", "choice", choices=EVENT_KINDS),
         _inp("ga_days", "GA at the event", **GA),
+        _inp("bleeding_heavy", "Bleeding is heavy", "bool", required=False),
+        _inp("bleeding_repeated", "Bleeding is repeated", "bool", required=False),
+        _inp("abdominal_pain", "With abdominal pain", "bool", required=False),
         _inp("ongoing", "Bleeding continues", "bool", required=False))},
     "fmh": {"title": "FMH (Kleihauer-Betke / flow) and anti-D dose", "dose": True, "run": run_fmh, "inputs": (
         _inp("fetal_cells", "Fetal cells counted", required=False, min=0, step="1"),
@@ -256,6 +269,8 @@ def run(name: str, args) -> dict:
         raise ValidationError(e.errors) from None
     except CareError as e:
         raise ValidationError({"_calc": str(e)}) from None
+    except OverflowError:  # a result beyond year 9999 from inputs each in range
+        raise ValidationError({"_calc": "the inputs give a date outside the calendar; check them"}) from None
     if hasattr(out, "to_dict"):
         out = out.to_dict()
     return out

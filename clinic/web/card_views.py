@@ -12,8 +12,9 @@ from __future__ import annotations
 
 from flask import Blueprint, Response, abort, flash, redirect, render_template, request, url_for
 
+from clinic.accounts import roles as R
 from clinic.card.qrtext import MAX_TEXT
-from clinic.web.auth import WRITE_ROLES, current_user, login_required, role_required
+from clinic.web.auth import current_user, may
 from clinic.web.db import get_data_dir, get_settings, get_store, utcnow
 
 bp = Blueprint("card", __name__, url_prefix="/cards")
@@ -33,7 +34,7 @@ def _plan(reading):
     if c is None:
         return None
     try:
-        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow())
+        return plan_dict(c.woman, c.pregnancy, c.entries, get_settings(), utcnow(), store=get_store())
     except Exception as e:  # noqa: BLE001 - a plan that cannot be made must not hide the reading
         return {"error": f"the care engine could not plan from this card ({type(e).__name__}: {e})", "items": []}
 
@@ -54,21 +55,18 @@ def _show(reading, status=200, **extra):
     view = _result_view(reading, plan)
     plan_error = plan.get("error") if plan else None
     code = 200 if reading.trust in ("trusted", "unknown-issuer") else 422
-    can_import = (reading.trust == "trusted" and current_user() is not None
-                  and current_user().role in WRITE_ROLES)
+    can_import = reading.trust == "trusted" and may(R.CARD_IMPORT)
     return render_template("card/result.html", reading=reading, view=view, plan_error=plan_error,
                            can_import=can_import, text=extra.pop("text", ""), nav_active="cards",
                            **extra), (status if status != 200 else code)
 
 
 @bp.route("/")
-@login_required
 def index():
     return render_template("card/read.html", nav_active="cards", error=None, text="")
 
 
 @bp.route("/read", methods=["POST"])
-@login_required
 def read():
     from clinic.card.codec import read_card
     text = request.form.get("code", "")
@@ -86,7 +84,6 @@ def read():
 
 
 @bp.route("/photo", methods=["POST"])
-@login_required
 def photo():
     from clinic.card.codec import Reading, read_card
     from clinic.card.scan import ImageReadError, qr_texts
@@ -107,7 +104,6 @@ def photo():
 
 
 @bp.route("/import", methods=["POST"])
-@role_required(*WRITE_ROLES)
 def import_card():
     from clinic.card.codec import read_card
     from clinic.card.importing import CardImportError, PossibleDuplicate, import_reading
@@ -125,7 +121,9 @@ def import_card():
     except (CardImportError, ValidationError, StoreError) as e:
         return _show(reading, status=422, text=text, import_error=str(e))
     words = {"created": "added", "updated": "updated", "unchanged": "already here",
-             "kept-local": "kept as recorded here"}
+             "kept-local": "kept as recorded here",
+             "not-owner": "not taken in (changes by the issuer to another facility's records; "
+                          "the owner's copies are kept, the changes are in the audit log)"}
     counts = ", ".join(f"{n} {words.get(k, k)}" for k, n in sorted(res.counts.items()))
     issuer = (reading.content.issuer_name if reading.content else "") or res.issuer
     flash(f"Card issue {res.issue} of {issuer} imported: {counts}.")
@@ -134,17 +132,28 @@ def import_card():
 
 # ---- printing ----------------------------------------------------------------------------
 
-def _issue(pregnancy_id):
-    from clinic.card.issue import CardIssueError, issue_card
+def _issue(pregnancy_id, *, new: bool = False):
+    """The pregnancy's current card. Showing or downloading never issues one (``new`` is the
+    POST's): with no current issue, the page offers to issue it and a download answers 409."""
+    from clinic.card.issue import CardIssueError, current_card, issue_card
     from clinic.signing.errors import KeyStoreError
     p = get_store().get(pregnancy_id)
     if p is None or p["kind"] != "pregnancy":
         abort(404, f"there is no pregnancy {pregnancy_id}")
     try:
-        return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, by=current_user().username,
-                          now=utcnow())
+        if new:
+            return issue_card(get_data_dir(), get_store(), get_settings(), pregnancy_id,
+                              by=current_user().username, now=utcnow())
+        return current_card(get_data_dir(), get_store(), get_settings(), pregnancy_id, now=utcnow())
     except (CardIssueError, KeyStoreError) as e:
         abort(500, f"the card could not be issued: {e}")
+
+
+def _issued(pregnancy_id):
+    ic = _issue(pregnancy_id)
+    if ic is None:
+        abort(409, "this pregnancy has no card for its current history yet: issue it on the card page first")
+    return ic
 
 
 def _file(data: bytes, mimetype: str, name: str, download: bool):
@@ -154,46 +163,55 @@ def _file(data: bytes, mimetype: str, name: str, download: bool):
 
 
 @bp.route("/pregnancy/<pregnancy_id>")
-@login_required
 def pregnancy_card(pregnancy_id):
     ic = _issue(pregnancy_id)
+    if ic is None:
+        from clinic.card.issue import issued
+        last = issued(get_data_dir(), pregnancy_id)
+        woman = get_store().get(get_store().get(pregnancy_id)["woman_id"]) or {}
+        return render_template("card/issue.html", pregnancy_id=pregnancy_id, woman=woman,
+                               last=last[-1] if last else None, nav_active="cards")
     return render_template("card/print.html", ic=ic, v=ic.view, pregnancy_id=pregnancy_id,
                            has_referral=bool(ic.view["referrals"]), nav_active="cards")
 
 
+@bp.route("/pregnancy/<pregnancy_id>", methods=["POST"])
+def issue_pregnancy_card(pregnancy_id):
+    ic = _issue(pregnancy_id, new=True)
+    flash(f"Card issue {ic.issue} made: print it and give it to her; it replaces older cards."
+          if not ic.reused else f"Card issue {ic.issue} is still current: nothing has changed since it was made.")
+    return redirect(url_for("card.pregnancy_card", pregnancy_id=pregnancy_id))
+
+
 @bp.route("/pregnancy/<pregnancy_id>/card.pdf")
-@login_required
 def card_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_pdf(ic.view), "application/pdf", f"card-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
 
 @bp.route("/pregnancy/<pregnancy_id>/card.png")
-@login_required
 def card_png(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.card_png(ic.view), "image/png", f"card-issue-{ic.issue}.png",
                  request.args.get("download") == "1")
 
 
 @bp.route("/pregnancy/<pregnancy_id>/sheet.pdf")
-@login_required
 def sheet_pdf(pregnancy_id):
     from clinic.card import printing
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     return _file(printing.sheet_pdf([ic.view] * 4), "application/pdf", f"cards-4up-issue-{ic.issue}.pdf",
                  request.args.get("download") == "1")
 
 
 @bp.route("/pregnancy/<pregnancy_id>/referral.pdf")
-@login_required
 def referral_pdf(pregnancy_id):
     from clinic.card import printing
     from clinic.card.view import show_date
-    ic = _issue(pregnancy_id)
+    ic = _issued(pregnancy_id)
     _, _, entries = get_store().history(pregnancy_id)
     refs = sorted((e for e in entries if e["kind"] == "referral" and not e.get("voided")),
                   key=lambda r: (r["referred_on"], r["created_at"]))

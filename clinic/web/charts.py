@@ -11,6 +11,7 @@ from typing import Callable, Iterable
 
 from markupsafe import Markup, escape
 
+from clinic.care.formatting import format_against
 from clinic.records.values import format_ga
 
 W, H = 360, 240
@@ -73,6 +74,11 @@ def _frame(title: str, x_lo: int, x_hi: int, y_ticks: Iterable[tuple[float, str]
             f'<text class="tick" x="{LEFT - 4}" y="{y + 4:.1f}" text-anchor="end" fill="{MUTED}">{escape(label)}</text>'
         )
     return out
+
+
+def _series(coords: list[tuple[float, float]]) -> str:
+    pts = " ".join(f"{x:.1f},{y:.1f}" for x, y in coords)
+    return f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="{pts}"/>'
 
 
 def titre_chart(points: list[tuple[int, int, str]]) -> Markup | None:
@@ -143,18 +149,14 @@ def mca_chart(
         )
     coords = [(_x(g, x_lo, x_hi), _y(v, 0, y_hi)) for g, v in points]
     if len(coords) > 1:
-        out.append(
-            f'<polyline class="series" fill="none" stroke="{BRAND}" stroke-width="2" points="'
-            + " ".join(f"{x:.1f},{y:.1f}" for x, y in coords)
-            + '"/>'
-        )
+        out.append(_series(coords))
+    cuts = [mom for mom, _, _ in lines]
     for (x, y), (g, v) in zip(coords, points, strict=True):
         mom_txt = ""
         if valid[0] <= g <= valid[1]:
-            mom_txt = f" ({v / median_fn(g):.2f} MoM)"
-        out.append(
-            f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{v:g} cm/s at {format_ga(g)}'
-            f"{mom_txt}</title></circle>"
-        )
+            # beside the drawn MoM curves: never rounded onto one it has not reached
+            mom_txt = f" ({format_against(v / median_fn(g), cuts)} MoM)"
+        out.append(f'<circle class="point" cx="{x:.1f}" cy="{y:.1f}" r="4" fill="{BRAND}"><title>{v:g} cm/s at '
+                   f'{format_ga(g)}{mom_txt}</title></circle>')
     out.append("</svg>")
     return Markup("".join(out))

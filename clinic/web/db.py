@@ -21,6 +21,11 @@ def get_store():
     return _ext()["store"]
 
 
+def get_users():
+    """The app's clinic.accounts.users.UserStore (<data>/users.json)."""
+    return _ext()["users"]
+
+
 def get_data_dir() -> Path:
     """The app's data folder (config.toml, records, keys, trust list, cards, bundles)."""
     return Path(current_app.config["DATA_DIR"])
@@ -48,19 +53,26 @@ def get_profile():
 
 
 def plan_for(pregnancy_id: str, history: tuple | None = None):
-    """The care engine's Plan for one pregnancy, now. ``history``: the (woman, pregnancy, entries)
-    of ``store.history(pregnancy_id)`` when the caller has read it already.
+    """The care engine's Plan for one pregnancy, now, with what her earlier pregnancies in the
+    store hand on. ``history``: the (woman, pregnancy, entries) of ``store.history(pregnancy_id)``
+    when the caller has read it already."""
+    store = get_store()
+    return plan_from_settings(get_settings(), history or store.history(pregnancy_id), utcnow(), store=store)
 
-    Plans are kept per app (``clinic.reports.plan_cache``): a pregnancy whose records and
-    profile are unchanged is not planned again while its plan still holds (read it, never
-    change it)."""
-    history = history or get_store().history(pregnancy_id)
-    plans = _ext().get("plans")
-    if plans is None:
-        return plan_from_settings(get_settings(), history, utcnow())
-    profile, context = care_inputs(get_settings())
-    return plans.plan(history, now=utcnow(), profile=profile, context=context)
+
+def _unwritable(e):
+    """A full disk or a read-only data folder, in plain words (503: the laptop cannot save now)."""
+    from flask import jsonify, render_template, request
+
+    current_app.logger.error("%s", e)
+    if request.path.startswith("/api/"):
+        return jsonify(error=str(e)), 503
+    return render_template("error.html", code=503, message=str(e)), 503
 
 
 def init_app(app: Flask) -> None:
-    """Nothing to set up or close per request: the Store is durable before each call returns."""
+    """Nothing to set up or close per request: the Store is durable before each call returns.
+    A store that cannot be written answers in plain words (``_unwritable``)."""
+    from clinic.store.errors import StoreUnwritable
+
+    app.register_error_handler(StoreUnwritable, _unwritable)

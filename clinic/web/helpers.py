@@ -14,7 +14,7 @@ from clinic.care.codes import gives_anti_d as codes_gives_anti_d
 from clinic.records.choices import plain_words
 from clinic.records.schema import KINDS
 from clinic.records.values import format_ga
-from clinic.web.clock import now_local, today_local
+from clinic.web.clock import clock_warnings, note_client_time, now_local, today_local
 from clinic.web.db import get_settings, utcnow
 
 
@@ -69,8 +69,9 @@ def countdown(value) -> str:
     return f"{text} ago" if past else f"in {text}"
 
 
-def deadline_text(value) -> str:
-    """'before 14:30 today' / 'before 14:30 tomorrow' / 'before 14:30 Thu 3 Dec', local time."""
+def deadline_text(value, short: bool = False) -> str:
+    """'before 14:30 today' / 'before 14:30 tomorrow' / 'before 14:30 Thu 3 Dec', local time.
+    ``short``: the weekday alone within the coming week ('before 14:30 Thu'), for one line."""
     dt = as_dt(value)
     if dt is None:
         return ""
@@ -78,7 +79,13 @@ def deadline_text(value) -> str:
     today = now_local().date()
     days = (loc.date() - today).days
     day = {0: "today", 1: "tomorrow", -1: "yesterday"}.get(days, loc.strftime("%a %d %b"))
+    if short and 1 < days < 7:
+        day = loc.strftime("%a")
     return f"before {loc.strftime('%H:%M')} {day}"
+
+
+def deadline_short(value) -> str:
+    return deadline_text(value, short=True)
 
 
 def form_raw(kind: str, form, *, partial: bool = False, only=None) -> dict:
@@ -139,8 +146,11 @@ def init_app(app: Flask) -> None:
     app.add_template_filter(ga_text, "ga")
     app.add_template_filter(countdown, "countdown")
     app.add_template_filter(deadline_text, "deadline")
+    app.add_template_filter(deadline_short, "deadline_short")
     app.add_template_global(today_local, "today_local")
     app.add_template_global(now_local, "now_local")
+    app.add_template_global(clock_warnings, "clock_warnings")
+    app.before_request(note_client_time)
     app.add_template_global(KINDS, "KINDS")
     app.add_template_global(entry_kind_for, "entry_kind_for")
     app.add_template_global(gives_anti_d, "gives_anti_d")

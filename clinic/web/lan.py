@@ -474,6 +474,7 @@ def make_servers(app, host: str, port: int, data_dir, *, setup_port: int | None 
                             server_name="rhledger-setup", shutdown_timeout=2, timeout=30)
     app.config["LAN_HTTPS_PORT"] = port
     app.config["LAN_SETUP_PORT"] = setup_port or None
+    app.config["SESSION_COOKIE_SECURE"] = True  # the session cookie travels over HTTPS only
     return https, plain, paths
 
 

@@ -1,34 +1,37 @@
-"""Today (the worklist), Find a woman, the service worker and manifest, error pages, nav."""
+"""Today (the worklist), Find a woman, the service worker and manifest, the main navigation."""
 from __future__ import annotations
 
 from flask import Blueprint, abort, current_app, redirect, render_template, request, send_from_directory, url_for
 
+from clinic.accounts import roles as R
 from clinic.web import worklist
 from clinic.web.db import get_settings, get_store
 
 bp = Blueprint("pages", __name__)
 
-# (label, endpoint, key) of the main navigation.
+# (label, endpoint, key, permission) of the main navigation: a link shows only to a role
+# that may open it (clinic.accounts.roles).
 NAV = (
-    ("Today", "pages.today", "today"),
-    ("Find", "pages.find", "find"),
-    ("Book", "records.booking", "book"),
-    ("Calculators", "tools.calculators", "calc"),
-    ("Stock", "records.stock", "stock"),
-    ("Supply", "supply.index", "supply"),
-    ("Cards", "card.index", "card"),
-    ("District", "district.index", "district"),
+    ("Today", "pages.today", "today", R.READ_RECORDS),
+    ("Find", "pages.find", "find", R.READ_RECORDS),
+    ("Book", "records.booking", "book", R.BOOK),
+    ("Calculators", "tools.calculators", "calc", R.CALC),
+    ("Stock", "records.stock", "stock", R.STOCK_READ),
+    ("Supply", "supply.index", "supply", R.STOCK_READ),
+    ("Cards", "card.index", "card", R.CARD_READ),
+    ("District", "district.index", "district", R.REPORT),
+    ("Staff", "admin.users", "users", R.USERS),
+    ("Audit", "admin.audit", "audit", R.AUDIT),
 )
 
 
 def nav_links():
-    from clinic.web.auth import WRITE_ROLES, current_user
+    from clinic.web.auth import may
 
-    user = current_user()
     district_office = get_settings().facility_kind == "district"
     out = []
-    for label, target, key in NAV:
-        if key == "book" and (user is None or user.role not in WRITE_ROLES):
+    for label, target, key, permission in NAV:
+        if not may(permission):
             continue
         if district_office and key in ("today", "stock"):
             continue  # the district office cares for no women and holds no anti-D: it starts on its report
@@ -36,32 +39,36 @@ def nav_links():
     return out
 
 
-def clock_warning() -> str | None:
-    """Said on every page while the laptop's clock is behind what the store already saved."""
-    from clinic.store.clock import clock_warning as behind
-    from clinic.web.db import get_data_dir, utcnow
-
-    return behind(get_data_dir(), utcnow())
-
-
 @bp.app_context_processor
 def _inject():
-    return {"settings": get_settings(), "nav_links": nav_links, "clock_warning": clock_warning}
+    return {"settings": get_settings(), "nav_links": nav_links}
 
 
 @bp.route("/")
 def today():
-    if get_settings().facility_kind == "district" and not request.args:
+    from clinic.web.auth import home_url, may
+
+    if get_settings().facility_kind == "district" and not request.args and may(R.REPORT):
         # The district office holds no women of its own: it starts on its report.
         return redirect(url_for("district.index"))
+    if not may(R.READ_RECORDS):
+        # Today lists women by name: a role that may not see names starts on its own page.
+        target = home_url()
+        if target == url_for("pages.today"):
+            abort(403, "your role may not see the worklist and has no start page of its own")
+        return redirect(target)
     flt = request.args.get("filter", "all")
     if flt not in worklist.FILTERS:
         abort(400, f"filter {flt!r} is not one of: {', '.join(worklist.FILTERS)}")
-    from clinic.web.auth import WRITE_ROLES
+    from clinic.web import triage
 
     wl = worklist.build(flt)
+    tiers = triage.triage(wl["rows"], wl["now"])
+    urgent = tiers[0] if tiers and tiers[0].key == "now" else None
     return render_template("today.html", wl=wl, filters=worklist.FILTERS, nav_active="today",
-                           write_roles=WRITE_ROLES)
+                           urgent=urgent, later=tiers[1:] if urgent else tiers,
+                           alert_groups=triage.alert_groups(wl["alerts"]), short_title=triage.short_title,
+                           headline=triage.headline)
 
 
 @bp.route("/find")
@@ -94,43 +101,3 @@ def manifest():
                                mimetype="application/manifest+json", max_age=0)
     resp.headers["Cache-Control"] = "no-cache"
     return resp
-
-
-def _error_page(e):
-    from flask import jsonify
-
-    from clinic.web.auth import is_api
-
-    code = getattr(e, "code", 500) or 500
-    desc = getattr(e, "description", str(e))
-    if is_api():
-        return jsonify(error=desc), code
-    return render_template("error.html", code=code, message=desc), code
-
-
-def _server_error(e):
-    from werkzeug.exceptions import InternalServerError
-
-    current_app.logger.exception("request failed", exc_info=getattr(e, "original_exception", None) or e)
-    return _error_page(InternalServerError(
-        "The laptop could not complete this request. Open the record to check what was saved before "
-        "trying again, and tell whoever looks after this installation."))
-
-
-def _unwritable(e):
-    """Disk full or data folder read-only: said plainly; nothing of the request was saved."""
-    from werkzeug.exceptions import HTTPException
-
-    current_app.logger.error("write refused: %s", e)
-    refusal = HTTPException(str(e))
-    refusal.code = 507 if e.reason == "disk-full" else 503
-    return _error_page(refusal)
-
-
-def register_errors(app):
-    from clinic.store import StoreUnwritable
-
-    for code in (400, 403, 404, 405, 409, 413):
-        app.register_error_handler(code, _error_page)
-    app.register_error_handler(StoreUnwritable, _unwritable)
-    app.register_error_handler(500, _server_error)

@@ -16,11 +16,11 @@ from clinic.records.validate import ValidationError
 from clinic.store import Conflict
 from clinic.web import charts
 from clinic.web import stock as stockmod
-from clinic.web.auth import WRITE_ROLES, current_user, role_required
+from clinic.web.auth import current_user, may_write_kind, require_kind
 from clinic.web.clock import today_local
 from clinic.web.db import get_profile, get_settings, get_store, plan_for, utcnow
 from clinic.web.helpers import form_raw, local_input
-from clinic.web.saving import BOOKING_PARTS, Duplicates, create_record, redirect_for, save_booking
+from clinic.web.saving import BOOKING_PARTS, Duplicates, check_dose_amendment, create_record, redirect_for, save_booking
 
 bp = Blueprint("records", __name__)
 
@@ -84,7 +84,6 @@ def ref_options(pregnancy_id: str) -> list[tuple[str, str]]:
 
 
 @bp.route("/book", methods=["GET", "POST"])
-@role_required(*WRITE_ROLES)
 def booking():
     store = get_store()
     woman_id = request.values.get("woman_id") or None
@@ -178,10 +177,10 @@ def pregnancy(pregnancy_id):
     all_entries = sorted(entries, key=time_of, reverse=True)
     return render_template(
         "pregnancy.html", woman=woman, preg=preg, entries=all_entries, plan=plan, plan_error=plan_error,
-        entry_kinds=[KINDS[k] for k in ENTRY_KINDS], time_of=time_of,
+        entry_kinds=[KINDS[k] for k in ENTRY_KINDS if may_write_kind(k)], time_of=time_of,
         titre_svg=charts.titre_chart(titre_points(all_entries, plan)),
         mca_svg=charts.mca_chart(mca_points(all_entries, plan), _mca_median, charts.mom_lines(get_profile())),
-        stock_links=_stock_links(all_entries), write_roles=WRITE_ROLES)
+        stock_links=_stock_links(all_entries) if may_write_kind("stock") else {})
 
 
 def ga_of(entry: dict, plan) -> int | None:
@@ -291,11 +290,11 @@ def _product_for(products, dose_iu):
 
 
 @bp.route("/pregnancies/<pregnancy_id>/add/<kind>", methods=["GET", "POST"])
-@role_required(*WRITE_ROLES)
 def add_entry(pregnancy_id, kind):
-    preg = _pregnancy_or_404(pregnancy_id)
     if kind not in ENTRY_KINDS:
         abort(404, f"{kind!r} is not an entry kind; allowed: {', '.join(ENTRY_KINDS)}")
+    require_kind(kind)
+    preg = _pregnancy_or_404(pregnancy_id)
     woman = get_store().get(preg["woman_id"])
     errors: dict = {}
     values = entry_defaults(kind, pregnancy_id)
@@ -321,9 +320,9 @@ def add_entry(pregnancy_id, kind):
 
 
 @bp.route("/records/<record_id>/amend", methods=["GET", "POST"])
-@role_required(*WRITE_ROLES)
 def amend(record_id):
     rec = _record_or_404(record_id)
+    require_kind(rec["kind"])
     spec = KINDS[rec["kind"]]
     errors: dict = {}
     values = {f.name: rec.get(f.name) for f in spec.fields}
@@ -348,6 +347,7 @@ def amend(record_id):
                         f"{rec.get('version')}). Check the current values below and apply your change again.")
         if not errors and not conflict:
             try:
+                check_dose_amendment(rec, changes, current_user())
                 out = get_store().amend(record_id, changes, by=current_user().username, reason=reason,
                                         expected_version=ev, now=utcnow())
             except ValidationError as e:
@@ -377,6 +377,8 @@ def _changed(f, old, new) -> bool:
     if f.type == "ga":
         return ga_text(old) != str(new).strip() if old is not None else True
     if f.type == "bool":
+        if old is None and f.unticked_is_no:
+            return True  # a question the record never answered: the form's answer (even "no") is new
         return bool(old) != (str(new).lower() in ("yes", "true", "on", "1"))
     if f.type == "choices":
         return list(old or []) != list(new)
@@ -389,9 +391,9 @@ def _changed(f, old, new) -> bool:
 
 
 @bp.route("/records/<record_id>/void", methods=["GET", "POST"])
-@role_required(*WRITE_ROLES)
 def void(record_id):
     rec = _record_or_404(record_id)
+    require_kind(rec["kind"])
     errors: dict = {}
     if rec.get("voided"):
         abort(409, "This record is already voided.")
@@ -413,8 +415,6 @@ def stock():
     record_id = request.form.get("id") or ""
     if request.method == "POST":
         user = current_user()
-        if user.role not in WRITE_ROLES:
-            abort(403, f"your role ({user.role}) may not record stock")
         values = form_raw("stock", request.form)
         try:
             res = create_record("stock", values, user, record_id=record_id or None)
@@ -429,4 +429,4 @@ def stock():
     moves = sorted(get_store().iter_records(kind="stock"), key=lambda r: r.get("at", ""), reverse=True)
     return render_template("stock.html", kind=KINDS["stock"], values=values, errors=errors,
                            moves=moves, on_hand=stockmod.on_hand(moves), record_id=record_id,
-                           nav_active="stock", write_roles=WRITE_ROLES), (422 if errors else 200)
+                           nav_active="stock"), (422 if errors else 200)

@@ -8,8 +8,10 @@ from __future__ import annotations
 
 import uuid
 
+from clinic.care.codes import AlertCode
 from clinic.records.schema import KINDS
 from clinic.records.validate import ValidationError, validate_record
+from clinic.records.values import utc_text
 from clinic.store import Created
 from clinic.web.db import get_settings, get_store, utcnow
 
@@ -76,8 +78,60 @@ def create_record(kind: str, fields: dict, user, *, record_id=None, woman_id=Non
         raise ValidationError({"fields": "must be an object of field: value"})
     rid = check_id(record_id)
     woman_id, pregnancy_id = resolve_parents(kind, woman_id, pregnancy_id)
-    return get_store().create(kind, fields, by=user.username, facility=get_settings().facility_id,
-                              woman_id=woman_id, pregnancy_id=pregnancy_id, record_id=rid, now=utcnow())
+    store = get_store()
+    if kind == "dose" and store.get(rid) is None:  # a replay was judged when it was first stored
+        clean = validate_record(kind, fields, now=utcnow(), tz=get_settings().tz)
+        check_departure({**clean, "id": rid, "kind": kind, "woman_id": woman_id, "pregnancy_id": pregnancy_id,
+                         "facility": get_settings().facility_id, "created_at": utc_text(utcnow()), "version": 1},
+                        user)
+    return store.create(kind, fields, by=user.username, facility=get_settings().facility_id,
+                        woman_id=woman_id, pregnancy_id=pregnancy_id, record_id=rid, now=utcnow())
+
+
+# Alerts of the care engine saying that a recorded dose departs from the plan. Recording such
+# a dose overrides the plan's suggestion: a clinician's decision, with the reason written down.
+DEPARTURE_ALERTS = (AlertCode.DOSE_ABOVE_ALLOWED, AlertCode.DOSE_RHD_POSITIVE, AlertCode.DOSE_AFTER_SENSITISATION)
+
+
+def departures(candidate: dict) -> list[str]:
+    """What the care engine says against this dose record (not yet stored), if anything."""
+    from clinic.care.errors import CareError
+    from clinic.web.db import plan_for
+
+    pid = candidate.get("pregnancy_id")
+    if not pid:
+        return []
+    woman, preg, entries = get_store().history(pid)
+    entries = [e for e in entries if e.get("id") != candidate["id"]] + [candidate]
+    try:
+        plan = plan_for(pid, (woman, preg, entries))
+    except CareError:
+        return []  # the record page shows why no plan can be made; nothing to judge against
+    return [a.message for a in plan.alerts if a.code in DEPARTURE_ALERTS and candidate["id"] in a.record_ids]
+
+
+def check_departure(candidate: dict, user) -> None:
+    """A dose against the plan needs the override permission and a reason (else 422 on the field)."""
+    from clinic.accounts import roles
+
+    said = departures(candidate)
+    if not said:
+        return
+    if not roles.may(user.role, roles.OVERRIDE):
+        raise ValidationError({"override_reason": f"{said[0]}. Only a clinician may record a dose the plan does "
+                                                  f"not support, with the reason; check the dose or ask one"})
+    if not str(candidate.get("override_reason") or "").strip():
+        raise ValidationError({"override_reason": f"is required: {said[0]}; say why this dose is given"})
+
+
+def check_dose_amendment(record: dict, changes: dict, user) -> None:
+    """The same rule when a dose is amended (the amended record is judged)."""
+    if record.get("kind") != "dose" or changes == {"voided": True}:
+        return
+    merged = validate_record("dose", changes, now=utcnow(), tz=get_settings().tz, current=record)
+    envelope = {k: record.get(k) for k in ("id", "kind", "woman_id", "pregnancy_id", "facility", "created_at",
+                                           "version")}
+    check_departure({**envelope, **merged}, user)
 
 
 def _validate_part(name: str, fields, errors: dict, now, tz) -> dict:

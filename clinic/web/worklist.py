@@ -46,16 +46,19 @@ def cared_for_here(preg: dict, facility_id: str) -> bool:
 
 
 def build(flt: str = "all") -> dict:
-    """{"rows": [{item, alerts, woman, pregnancy, plan}], "alerts": [...]}, most urgent first.
+    """{"rows": [{item, woman, pregnancy}], "alerts": [...], "filter", "counts": {filter: rows}},
+    most urgent first; "counts" gives the rows of every filter. Alerts come with the "all" filter
+    (and a plan that could not be made, with every filter).
 
-    The pregnancies and their plans come from the app's ``CaseCache`` (``clinic.reports.case_cache``):
-    only partitions written since the last look are read again, and only pregnancies whose
-    records changed or whose plan no longer holds are planned again."""
+    The pregnancies and their plans come from the app's ``CaseCache`` (``clinic.reports.case_cache``,
+    each planned with her earlier pregnancies, as ``db.plan_for`` does): only partitions written since
+    the last look are read again, and only pregnancies whose records (or an earlier pregnancy's)
+    changed, or whose plan no longer holds, are planned again."""
     if flt not in FILTERS:
         raise KeyError(flt)
     store, s = get_store(), get_settings()
     now = utcnow()
-    rows, alerts = [], []
+    candidates, alerts = [], []
 
     def here(woman: dict, preg: dict, entries: list[dict]) -> bool:
         return preg.get("status") in ACTIVE_STATUS and not preg.get("voided") and cared_for_here(preg, s.facility_id)
@@ -74,7 +77,7 @@ def build(flt: str = "all") -> dict:
     for case in cases:
         woman, preg, plan = case.woman, case.pregnancy, case.plan
         for a in _get(plan, "alerts", ()) or ():
-            if _get(a, "severity") in ("danger", "warning") and flt == "all":
+            if _get(a, "severity") in ("danger", "warning"):
                 alerts.append({"alert": a, "woman": woman, "pregnancy": preg})
         for it in _get(plan, "items", ()) or ():
             state = _get(it, "state")
@@ -84,9 +87,7 @@ def build(flt: str = "all") -> dict:
                 start = as_dt(_get(it, "opens")) or as_dt(_get(it, "due"))
                 if start is None or start > now + SOON:
                     continue
-            if not _matches(it, flt, now):
-                continue
-            rows.append({"item": it, "woman": woman, "pregnancy": preg})
+            candidates.append({"item": it, "woman": woman, "pregnancy": preg})
     far = now + timedelta(days=3650)
 
     def urgency(r):
@@ -98,7 +99,11 @@ def build(flt: str = "all") -> dict:
         late = as_dt(_get(it, "late_until")) if state == "overdue" else None
         return (rank, late or as_dt(_get(it, "closes")) or as_dt(_get(it, "due")) or far)
 
-    rows.sort(key=urgency)
+    candidates.sort(key=urgency)
+    counts = {f: sum(1 for r in candidates if _matches(r["item"], f, now)) for f in FILTERS}
+    rows = [r for r in candidates if _matches(r["item"], flt, now)]
     sev = {"danger": 0, "warning": 1}
     alerts.sort(key=lambda a: sev.get(_get(a["alert"], "severity"), 2))
-    return {"rows": rows, "alerts": alerts, "filter": flt}
+    if flt != "all":  # a filtered list still says when a plan could not be made
+        alerts = [a for a in alerts if _get(a["alert"], "code") == AlertCode.PLAN_FAILED]
+    return {"rows": rows, "alerts": alerts, "filter": flt, "counts": counts, "now": now}

@@ -142,7 +142,12 @@ def test_print_routes_give_pdf_png_and_sheet(app):
     store = app.extensions["rhledger"]["store"]
     w, p, e = full_history()
     put_in_store(store, (w, p, e), facility="DEMO-HOSPITAL")
-    c, _ = sign_in(app)
+    c, tok = sign_in(app)
+    # Issue 16: showing the card page issues nothing; the card is issued by the page's POST.
+    first = c.get(f"/cards/pregnancy/{p['id']}")
+    assert first.status_code == 200 and "No card has been issued" in first.get_data(as_text=True)
+    assert c.get(f"/cards/pregnancy/{p['id']}/card.pdf").status_code == 409
+    assert c.post(f"/cards/pregnancy/{p['id']}", data={"csrf_token": tok}).status_code == 302
     page = c.get(f"/cards/pregnancy/{p['id']}")
     assert page.status_code == 200 and "Issue <b>1</b>" in page.get_data(as_text=True)
     pdf = c.get(f"/cards/pregnancy/{p['id']}/card.pdf")

@@ -106,7 +106,7 @@ screens = st.fixed_dictionaries({
                            unique=True),
     "titre": st.sampled_from([1, 2, 4, 8, 16, 32, 64, 128, 256, 512, 1024, 2048, 4096]),
     "anti_d_iu_ml": st.floats(0, 1000, allow_nan=False).map(lambda x: round(x, 2)),
-    "lab": st.text(st.characters(min_codepoint=32, max_codepoint=0x2FFF, blacklist_categories=("Cs",)),
+    "lab": st.text(st.characters(min_codepoint=32, max_codepoint=0x2FFF, blacklist_categories=("Cs", "Cc")),
                    max_size=40).map(str.strip),
 })
 
@@ -123,3 +123,20 @@ def test_any_valid_screen_round_trips(fields, small, clinic_key, trust):
     s = record("screen", 200, fields, woman_id=w["id"], pregnancy_id=p["id"])
     _, r = roundtrip((w, p, [s]), clinic_key, trust)
     assert carried(r.content.entries[0]) == carried(s)
+
+
+@settings(max_examples=30, deadline=None, suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(kind=st.sampled_from(["threatened-miscarriage", "antepartum-haemorrhage"]),
+       facts=st.fixed_dictionaries({}, optional={"bleeding_heavy": st.booleans(), "bleeding_repeated": st.booleans(),
+                                                 "abdominal_pain": st.booleans(), "ongoing": st.booleans()}))
+def test_early_bleeding_facts_round_trip_yes_no_and_not_recorded(kind, facts, small, clinic_key, trust):
+    # BSH 2014 (Qureshi et al.): bleeding that is repeated, heavy or with abdominal pain; "not
+    # recorded" (absent) must come back absent, not as "no"
+    w, p, e = small
+    ev = record("event", 201, {"event_kind": kind, "occurred_at": "2026-09-02T08:00:00Z", "ga_days": "10+4",
+                               **facts}, woman_id=w["id"], pregnancy_id=p["id"])
+    _, r = roundtrip((w, p, [ev]), clinic_key, trust)
+    back = r.content.entries[0]
+    assert carried(back) == carried(ev)
+    for name in ("bleeding_heavy", "bleeding_repeated", "abdominal_pain"):
+        assert back.get(name) is facts.get(name)

@@ -54,9 +54,12 @@ def test_fetal_rhd_test_not_needed_for_a_woman_managed_as_rhd_positive():
 
 
 def test_fetal_rhd_test_after_the_birth():
-    # born after 25+6 without a test: missed; born before: not needed
-    assert item(make_plan(booked_negative() + [birth("2026-10-01T10:00:00Z")], now=utc(2026, 10, 2)),
-                "fetal-rhd-test").state == "missed"
+    # born after 25+6 without a test: no longer needed (issue 11 rule 3: the test only informs
+    # antenatal anti-D, NICE DG25 (2016) 1.1; the cord typing answers it now), never missed;
+    # born before: not needed
+    late = item(make_plan(booked_negative() + [birth("2026-10-01T10:00:00Z")], now=utc(2026, 10, 2)),
+                "fetal-rhd-test")
+    assert late.state == "not-needed" and late.reason.startswith("no longer needed")
     assert item(make_plan(booked_negative() + [birth("2026-08-01T10:00:00Z")], now=utc(2026, 8, 2)),
                 "fetal-rhd-test").state == "not-needed"
 

@@ -28,10 +28,13 @@ def test_partner_typing_is_due_from_booking_until_the_end_of_27_6():
     assert item(plan, "partner-typing").source.startswith("NICE TA156")
 
 
-def test_partner_typing_not_done_by_28_0_is_overdue_and_missed_at_birth():
+def test_partner_typing_not_done_by_28_0_is_overdue_and_no_longer_needed_at_birth():
     assert item(make_plan(booked_negative(), now=utc(2026, 9, 13, 0, 1)), "partner-typing").state == "overdue"
-    born = make_plan(booked_negative() + [birth("2026-10-30T10:00:00Z")], now=utc(2026, 10, 31))
-    assert item(born, "partner-typing").state == "missed"
+    # issue 11 rule 3: the father's type only informs a choice before the birth (NICE TA41 (2002)
+    # 1.2): after it, the task is no longer needed, never missed
+    born = item(make_plan(booked_negative() + [birth("2026-10-30T10:00:00Z")], now=utc(2026, 10, 31)),
+                "partner-typing")
+    assert born.state == "not-needed" and born.reason.startswith("no longer needed")
     # born before the window closed (26 weeks): not needed any more, the cord typing decides
     early = make_plan(booked_negative() + [birth("2026-08-30T10:00:00Z")], now=utc(2026, 8, 31))
     assert item(early, "partner-typing").state == "not-needed"

@@ -7,7 +7,7 @@ from pathlib import Path
 
 import pytest
 
-from seed_demo.scenario import FACILITY_SITES, pregnancy_id
+from seed_demo.scenario import FACILITY_SITES, pregnancy_id, pregnancy_ids
 from seed_demo.sites import SITE_DEFS
 from seed_demo.stories import STORIES
 
@@ -40,7 +40,7 @@ def test_every_bundle_is_accepted(district):
 def test_each_woman_once_after_merging(district):
     _, store, _ = district
     pregnancies = store.pregnancies()
-    assert sorted(p["id"] for p in pregnancies) == sorted(pregnancy_id(s.key) for s in STORIES)
+    assert sorted(p["id"] for p in pregnancies) == sorted(pid for s in STORIES for pid in pregnancy_ids(s))
     assert len(store.women_of()) == len(STORIES)
 
 

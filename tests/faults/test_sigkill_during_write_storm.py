@@ -15,6 +15,7 @@ from tests.load.harness import Client, Refused, Server, booking, booking_ids, ma
 
 CLIENTS = 4
 KILLS = 3
+ACKED_BEFORE_KILL = 6   # writes acknowledged in a round before the server is killed
 
 pytestmark = pytest.mark.slow
 
@@ -71,12 +72,16 @@ def test_kill_during_write_storm_loses_no_acknowledged_write(tmp_path):
         storms = [Storm(n, server.url, pending[n]) for n in range(CLIENTS)]
         for s in storms:
             s.start()
+        # Kill (or, the last round, stop) once the storm is under way: some writes acknowledged in
+        # this round (a loaded machine may take seconds to sign the clients in), then a moment more.
+        deadline = time.monotonic() + 60
+        while sum(len(s.acked) for s in storms) < ACKED_BEFORE_KILL and time.monotonic() < deadline \
+                and any(s.is_alive() for s in storms):
+            time.sleep(0.02)
+        time.sleep(rng.uniform(0.1, 0.8))
         if round_ < KILLS:
-            time.sleep(rng.uniform(1.0, 2.0))
             server.kill()
         else:
-            # The last round: let the resends through, then stop the clients by stopping the server.
-            time.sleep(1.0)
             server.stop()
         for s in storms:
             s.join(timeout=60)

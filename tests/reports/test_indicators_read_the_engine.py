@@ -55,3 +55,30 @@ def test_new_immune_sensitisation_reads_the_engines_immune_anti_d_alert():
     assert rep.cell(F, "new_sensitisations").numerator == 1
     (fu,) = rep.sensitisations
     assert (fu.pregnancy_id, fu.record_id, fu.detail["titre"]) == ("p-sens", s["id"], 8)
+
+
+def test_a_task_closed_as_no_longer_needed_stays_planned_but_is_not_missed():
+    # issue 11 rule 3: the father was never typed and the single routine dose was given on 28+0
+    # (NICE TA156 3.3), so partner typing is "no longer needed" (its choice is gone). It was
+    # planned: "partner typed" still counts her as not typed (1 of 2), with no follow-up; the
+    # fetal RHD test likewise.
+    now = datetime(2026, 9, 20, tzinfo=timezone.utc)
+    entries = booked_negative() + [screen("2026-09-13T08:00:00Z"),
+                                   rec("dose", given_at="2026-09-13T09:00:00Z", amount=1500, unit="IU", route="IM",
+                                       lot="L1", lot_expiry="2027-12-31", indication="routine-antenatal",
+                                       given_by="Midwife B")]
+    preg = dict(pregnancy(), id="p-lapsed")
+    plan = make_plan(entries, now=now, profile="bsh-2014-single", preg=preg)
+    assert plan.item("partner-typing").state == "not-needed"
+    assert plan.item("partner-typing").reason.startswith("no longer needed")
+    lapsed_case = Case(woman(), preg, entries, plan, facility=F)
+    typed_entries = booked_negative() + [rec("partner_typing", rhd="positive", tested_on="2026-05-02")]
+    typed_preg = dict(pregnancy(), id="p-typed2")
+    typed = Case(woman(), typed_preg, typed_entries,
+                 make_plan(typed_entries, now=now, profile="bsh-2014-single", preg=typed_preg), facility=F)
+    rep = compute_month([lapsed_case, typed], MAY, timezone.utc, now=now, facilities=[F])
+    c = rep.cell(F, "neg_partner_typed")
+    assert (c.numerator, c.denominator) == (1, 2)
+    assert c.outcomes["partner-not-typed"] == 1 and "missed" not in c.outcomes
+    assert rep.cell(F, "neg_fetal_rhd").denominator == 2
+    assert not [f for f in rep.follow_up if f.pregnancy_id == "p-lapsed" and f.item_code == "partner-typing"]

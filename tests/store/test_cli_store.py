@@ -37,9 +37,11 @@ def test_init_writes_config_store_and_key(tmp_path):
     s = load_settings(d)
     assert (s.facility_id, s.facility_name, s.timezone, s.profile) == (
         "hill-1", "Hill Clinic", "Africa/Kampala", "bsh-2014")
-    (acct,) = s.accounts
-    from werkzeug.security import check_password_hash
-    assert acct.username == "nurse" and check_password_hash(acct.password_hash, "long enough pw")
+    from clinic.accounts.passwords import verify
+    from clinic.accounts.users import UserStore
+    (acct,) = UserStore(d).all()  # accounts live in users.json, hashed with Argon2id
+    assert acct.username == "nurse" and acct.password_hash.startswith("$argon2id$")
+    assert verify(acct.password_hash, "long enough pw")[0]
     assert s.products and s.backups_keep == 14
     assert (d / "records" / "store.json").exists()
     Store(d)

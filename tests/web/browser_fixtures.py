@@ -118,9 +118,19 @@ def context(browser, live):
     errors = []
     ctx.on("weberror", lambda e: errors.append(str(e.error)))
     ctx.page_errors = errors
+    # The app's Content-Security-Policy forbids inline script, inline style and style attributes:
+    # the browser reports each thing it refused on the console.
+    csp = []
+    ctx.on("console", lambda m: csp.append(f"{m.type}: {m.text}") if is_csp_violation(m.text) else None)
+    ctx.csp_violations = csp
     yield ctx
     ctx.close()
     assert not errors, f"JavaScript errors on the pages: {errors}"
+    assert not csp, f"Content-Security-Policy violations on the pages: {csp}"
+
+
+def is_csp_violation(text: str) -> bool:
+    return "Content Security Policy" in text or "Content-Security-Policy" in text
 
 
 @pytest.fixture

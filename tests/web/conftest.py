@@ -42,6 +42,12 @@ username = "officer"
 display_name = "District Officer Test"
 role = "district-officer"
 password_hash = "{do}"
+
+[[accounts]]
+username = "okello"
+display_name = "Clinician Test"
+role = "clinician"
+password_hash = "{mw}"
 """
 
 
@@ -115,6 +121,12 @@ def client(app):
 @pytest.fixture
 def officer(app):
     return sign_in(app, "officer")
+
+
+@pytest.fixture
+def clinician(app):
+    """A clinician: everything a midwife does, and the surveillance entries (MCA Doppler, FBS, IUT)."""
+    return sign_in(app, "okello")
 
 
 @pytest.fixture

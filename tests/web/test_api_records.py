@@ -46,7 +46,8 @@ def test_same_id_with_other_fields_is_a_409_conflict(client, booked):
     assert r.get_json()["current_version"] == 1
 
 
-def test_validation_errors_name_the_field_and_range(client, booked):
+def test_validation_errors_name_the_field_and_range(clinician, booked):
+    client = clinician  # an MCA Doppler is a clinician's entry
     r = client.api("POST", "/api/v1/records", json={
         "id": new_id(), "kind": "doppler", "pregnancy_id": booked["pregnancy"]["id"],
         "fields": {"measured_at": at_ago(hours=1), "mca_psv_cm_s": 400}})

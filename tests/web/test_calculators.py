@@ -71,6 +71,15 @@ def test_mca_mom_matches_the_care_engine(client):
     assert j["result"]["mom"] == pytest.approx(mca_psv_mom(45, 196), abs=1e-4)
 
 
+def test_mca_mom_just_below_a_threshold_is_not_shown_as_it(client):
+    # issue 11 rule 5: a MoM below 1.50 (Mari 2000 moderate, from memory) never reads "1.50"
+    from clinic.care import mca_psv_median
+
+    psv = round(1.49996 * mca_psv_median(196), 5)
+    html = client.get(f"/calc/mca?psv_cm_s={psv}&ga_days=28%2B0").get_data(as_text=True)
+    assert "(just below 1.50) MoM" in html and ">1.50 MoM" not in html
+
+
 @pytest.mark.parametrize("query,field,text", [
     ("psv_cm_s=400&ga_days=28%2B0", "psv_cm_s", "5"),
     ("psv_cm_s=40&ga_days=banana", "ga_days", "weeks+days"),

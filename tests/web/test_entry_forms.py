@@ -54,7 +54,8 @@ def test_every_entry_kind_has_valid_and_invalid_examples():
 
 
 @pytest.mark.parametrize("kind", ENTRY_KINDS)
-def test_entry_form_shows_every_schema_field(client, booked, kind):
+def test_entry_form_shows_every_schema_field(clinician, booked, kind):
+    client = clinician  # a clinician may write every entry kind
     pid = booked["pregnancy"]["id"]
     r = client.get(f"/pregnancies/{pid}/add/{kind}")
     assert r.status_code == 200
@@ -68,7 +69,8 @@ def test_entry_form_shows_every_schema_field(client, booked, kind):
 
 
 @pytest.mark.parametrize("kind", ENTRY_KINDS)
-def test_entry_form_saves_and_shows_on_the_time_line(client, booked, store, kind):
+def test_entry_form_saves_and_shows_on_the_time_line(clinician, booked, store, kind):
+    client = clinician  # a clinician may write every entry kind
     pid = booked["pregnancy"]["id"]
     r = client.post(f"/pregnancies/{pid}/add/{kind}", data=_fill(kind))
     assert r.status_code == 302, r.get_data(as_text=True)[-3000:]
@@ -80,7 +82,8 @@ def test_entry_form_saves_and_shows_on_the_time_line(client, booked, store, kind
 
 
 @pytest.mark.parametrize("kind", ENTRY_KINDS)
-def test_entry_form_error_is_shown_next_to_its_field(client, booked, store, kind):
+def test_entry_form_error_is_shown_next_to_its_field(clinician, booked, store, kind):
+    client = clinician  # a clinician may write every entry kind
     pid = booked["pregnancy"]["id"]
     field, bad = INVALID[kind]
     data = _fill(kind)
@@ -97,7 +100,8 @@ def test_entry_form_error_is_shown_next_to_its_field(client, booked, store, kind
     assert "Please correct" in html
 
 
-def test_number_inputs_carry_the_schema_range(client, booked):
+def test_number_inputs_carry_the_schema_range(clinician, booked):
+    client = clinician  # a clinician may write every entry kind
     html = client.get(f"/pregnancies/{booked['pregnancy']['id']}/add/doppler").get_data(as_text=True)
     assert re.search(r'name="mca_psv_cm_s"[^>]*min="5"[^>]*max="150"', html)
     assert re.search(r'name="ga_days"[^>]*pattern=', html)
@@ -146,6 +150,7 @@ def test_resubmitting_the_same_form_id_stores_once(client, booked, store):
     assert len([e for e in store.entries(pid) if e["kind"] == "referral"]) == 1
 
 
-def test_forms_with_a_ga_field_show_the_ga_today(client, booked):
+def test_forms_with_a_ga_field_show_the_ga_today(clinician, booked):
+    client = clinician  # a clinician may write every entry kind
     html = client.get(f"/pregnancies/{booked['pregnancy']['id']}/add/doppler").get_data(as_text=True)
     assert "GA today 20+0" in html and "Leave the GA empty" in html

@@ -140,3 +140,20 @@ def test_record_page_offers_the_entry_that_completes_each_open_item(client, book
     assert "Record this dose" in html
     assert f"/pregnancies/{pid}/add/partner_typing" in html  # partner typing is due at 20 weeks
     assert html.count('class="item-actions"') >= 2
+
+
+def test_a_positive_screen_without_an_antibody_is_on_today_and_the_record(client, store, booked):
+    # issue 11 rule 1 (BSH 2016, White et al., abstract: a detected antibody is identified): the
+    # identification task and its alert reach Today and her record page
+    pid = booked["pregnancy"]["id"]
+    s = store.create("screen", {"sampled_at": at_ago(days=1), "result": "positive"},
+                     by="mwangi", facility="test-clinic", pregnancy_id=pid).record
+    body = client.get("/api/v1/worklist").get_json()
+    (row,) = [i for i in body["items"] if i["item"]["code"] == f"antibody-identification:{s['id']}"]
+    assert row["item"]["state"] == "due" and row["item"]["category"] == "screen"
+    tests = client.get("/api/v1/worklist?filter=tests").get_json()["items"]
+    assert any(i["item"]["code"].startswith("antibody-identification") for i in tests)
+    html = client.get("/").get_data(as_text=True)
+    assert "Identify the antibody on the positive screen" in html and "antibody not identified" in html
+    page = client.get(f"/pregnancies/{pid}").get_data(as_text=True)
+    assert "Identify the antibody on the positive screen" in page

@@ -5,7 +5,7 @@ from __future__ import annotations
 from datetime import date, datetime, timedelta
 
 from clinic.care import calc, codes
-from clinic.care.codes import AlertCode, ItemCode
+from clinic.care.codes import NO_LONGER_NEEDED, AlertCode, ItemCode
 from clinic.care.model import Alert, CareContext, PlanItem
 from clinic.care.planning.core import (
     OPEN_STATES,
@@ -107,11 +107,9 @@ def _typing_item_state(pl: Planner, it: PlanItem, records: list[Record], what: s
         it.timeliness = "on-time" if it.closes is None or t <= it.closes else "late"
         return True
     if pl.born_at:
-        if it.closes is not None and pl.born_at <= it.closes:
-            it.state = "not-needed"
-            it.reason = "the baby was born before the window closed: the cord blood typing decides"
-        else:
-            it.state, it.reason = "missed", f"no {what} recorded before the birth"
+        # Only the choices before the birth needed it; now the baby's own typing answers them.
+        it.state = "not-needed"
+        it.reason = f"{NO_LONGER_NEEDED}: no {what} before the birth, and the cord blood typing now decides"
         return True
     if pl.preg.get("status") == "ended-early":
         it.state, it.reason = "not-needed", "the pregnancy ended early"
@@ -218,12 +216,14 @@ def routine_doses(pl: Planner) -> None:
             it.state, it.reason = "not-needed", stop
         elif fetal_neg:
             it.state, it.reason = "not-needed", "cell-free fetal RHD negative: routine antenatal anti-D not needed"
+            if p.get("routine.targeted_shared_decision"):
+                it.reason += "; it may still be offered after a shared decision with her"
             it.related_id = pl.fetal["cffdna_id"]
         elif pl.partner_negative and p.get("routine.partner_negative_skips_routine"):
             it.state = "not-needed"
             it.reason = ("the baby's father is RhD negative and paternity is certain: routine antenatal anti-D "
-                         "not needed (profile setting routine.partner_negative_skips_routine); give it if she "
-                         "chooses to have it")
+                         "not needed (profile setting routine.partner_negative_skips_routine); it may still be "
+                         "offered after a shared decision with her: give it if she chooses to have it")
             it.related_id = pl.partner_id
         elif pl.born_at and pl.born_at < opens:
             it.state, it.reason = "not-needed", "born before this dose was due"
@@ -237,6 +237,10 @@ def routine_doses(pl: Planner) -> None:
                          "overdue": "the on-time window has closed: give it now, a late dose is still worth giving "
                                     f"(until {format_ga(r.late_until_ga_days)})",
                          "missed": "not given in the window, and the late window has passed"}[it.state]
+        if pl.partner_negative and it.state in OPEN_STATES:
+            # Her informed choice (the profile lets her decline): the reason says so beside the dose.
+            it.reason += ("; the baby's father is RhD negative and paternity is certain: after a shared "
+                          "decision she may choose to decline it")
         if pl.rhd["managed_as"] in ("untyped", "retest") and it.state in OPEN_STATES:
             it.reason += "; only if RhD negative (typing not yet known)"
     if p.get("pre_dose_screen.required") and first is not None:

@@ -1,7 +1,11 @@
-"""Red cell antibodies on the screens: is an anti-D passive (from prophylaxis) or immune?
+"""Red cell antibodies on the screens: which antibody, is it clinically significant, and is an
+anti-D passive (from prophylaxis) or immune?
 
-Immune anti-D, or any other red cell antibody, puts the pregnancy on the surveillance pathway
-(surveillance.py) and stops anti-D prophylaxis.
+Immune anti-D stops anti-D prophylaxis; it, and any other clinically significant antibody (the
+profile's ``antibody.clinically_significant``), puts the pregnancy on the surveillance pathway
+(surveillance.py). An antibody the profile lists as not clinically significant is noted and not
+followed. A positive screen that names no antibody, or one of unknown significance, is left
+for identification (identification.py opens the task).
 """
 from __future__ import annotations
 
@@ -15,6 +19,36 @@ from clinic.care.protocol import Profile
 from clinic.records.values import parse_utc
 
 
+def antibody_name(text: str | None) -> str | None:
+    """A laboratory's antibody name in the profile's spelling: "Jk(a)", "anti Jka" -> "anti-Jka";
+    None for no name. Case is kept: anti-c and anti-C are different antibodies."""
+    if text is None:
+        return None
+    t = " ".join(str(text).split()).replace("(", "").replace(")", "")
+    if not t:
+        return None
+    low = t.lower()
+    for prefix in ("anti-", "anti ", "anti"):
+        if low.startswith(prefix):
+            t = t[len(prefix):].strip(" -")
+            break
+    return f"anti-{t}" if t else None
+
+
+def significance(name: str | None, profile: Profile) -> str:
+    """"significant", "not-significant" or "unknown" by the profile's antibody lists (a name
+    matched without regard to case only where that match is unambiguous)."""
+    if name is None:
+        return "unknown"
+    lists = (("significant", profile.get("antibody.clinically_significant")),
+             ("not-significant", profile.get("antibody.not_clinically_significant")))
+    for word, names in lists:
+        if name in names:
+            return word
+    loose = [word for word, names in lists for n in names if n.lower() == name.lower()]
+    return loose[0] if len(loose) == 1 else "unknown"
+
+
 def judge_antibodies(h: History, doses: list[Dose], profile: Profile, alerts: list[Alert]) -> Antibodies:
     ab = profile.get("antibody")
     src = profile.section_source("antibody")
@@ -25,11 +59,16 @@ def judge_antibodies(h: History, doses: list[Dose], profile: Profile, alerts: li
         if s.get("result") != "positive":
             continue
         t = parse_utc(s["sampled_at"])
-        for name in s.get("antibodies") or []:
-            titre = s.get("titre") if s.get("titre_antibody") == name else None
+        named = s.get("antibodies") or []
+        unknown: list[str] = []
+        if not named:
+            unknown.append("no antibody is named on it")
+        for raw in named:
+            name = antibody_name(s.get("antibody_other")) if raw == "other" else raw
+            titre = s.get("titre") if s.get("titre_antibody") == raw else None
             finding: dict[str, Any] = {
-                "screen_id": s["id"], "antibody": name if name != "other" else (s.get("antibody_other") or "other"),
-                "sampled_at": s["sampled_at"], "titre": titre, "origin": None}
+                "screen_id": s["id"], "antibody": name or "other", "sampled_at": s["sampled_at"], "titre": titre,
+                "origin": None, "significance": significance(name, profile)}
             if name == "anti-D":
                 origin, why = _anti_d_origin(s, t, titre, [d for d in doses if t - window <= d.at <= t],
                                              profile, alerts)
@@ -52,15 +91,31 @@ def judge_antibodies(h: History, doses: list[Dose], profile: Profile, alerts: li
                                         f"anti-D found on {s['sampled_at'][:10]}: {why}; prophylaxis continues "
                                         f"(a clinician confirms)", src, [s["id"]]))
                 elif origin == "undetermined":
+                    out.undetermined.append(s["id"])
                     alerts.append(Alert(AlertCode.ANTI_D_UNDETERMINED, "warning",
                                         "anti-D found after recent prophylaxis without a titre or quantitation: ask "
                                         "the laboratory to quantify; prophylaxis continues until it is shown to be "
                                         "immune", src, [s["id"]]))
-            else:
+            elif finding["significance"] == "significant":
                 finding["origin"] = "immune"
-                finding["reason"] = "red cell antibody other than anti-D: surveillance for HDFN"
+                finding["reason"] = f"{name}, a clinically significant red cell antibody: surveillance for HDFN"
                 out.surveillance = True
+            elif finding["significance"] == "not-significant":
+                finding["origin"] = "not-significant"
+                finding["reason"] = f"{name} is not clinically significant in pregnancy (profile): not followed"
+                alerts.append(Alert(AlertCode.ANTIBODY_NOT_SIGNIFICANT, "info",
+                                    f"{name} on the screen of {s['sampled_at'][:10]} is not clinically significant "
+                                    f"in pregnancy: no titres or surveillance for it; the planned screens "
+                                    f"continue, and anti-D prophylaxis is unchanged", src, [s["id"]]))
+            else:
+                finding["origin"] = "unknown"
+                what = (f"{name} is not known to this profile as clinically significant or not" if name else
+                        "an antibody recorded as 'other' has no name")
+                finding["reason"] = what + ": identify it"
+                unknown.append(what)
             out.findings.append(finding)
+        if unknown:
+            out.unidentified[s["id"]] = "; ".join(unknown)
     return out
 
 

@@ -5,6 +5,7 @@ from datetime import timedelta
 
 from clinic.care import calc
 from clinic.care.codes import AlertCode, ItemCode
+from clinic.care.planning import carried
 from clinic.care.planning.core import Planner, fmt, midnight, window_state
 from clinic.care.planning.doses import POSTPARTUM
 from clinic.care.planning.fmh import fmh_test_done
@@ -33,8 +34,8 @@ def birth_items(pl: Planner) -> None:
         cord.reason = "baby RhD " + ", ".join(str(r) for r in rhds) + (f"; DAT {b.get('dat')}" if b.get("dat") else "")
     else:
         cord.state = "due" if pl.now <= closes else "missed"
-        cord.reason = ("the baby's RhD group is not known: type the cord or baby blood; until then the mother's "
-                       "dose is due")
+        which = "the cord or baby blood" if len(rhds) == 1 else "each baby not yet typed"
+        cord.reason = f"{_babies(pl.births)}: type {which}; until then the mother's dose is due"
     if any(x.get("dat") == "positive" for x in pl.births):
         pl.alert(AlertCode.BABY_DAT_POSITIVE, "warning",
                  "the baby's DAT is positive: after antenatal anti-D this may be passive antibody; it does not by "
@@ -61,11 +62,10 @@ def birth_items(pl: Planner) -> None:
         it.state, it.reason, it.dose_iu = "not-needed", stop, None
     elif baby_neg:
         it.state, it.dose_iu = "not-needed", None
-        it.reason = "the baby is RhD negative: no anti-D needed"
+        it.reason = ("the baby is RhD negative" if len(rhds) == 1 else f"all {len(rhds)} babies are RhD negative") \
+            + ": no anti-D needed"
     else:
-        why = "the baby is RhD positive" if all(r == "positive" for r in rhds) else \
-            "the baby's RhD group is not known (not tested" + (
-                ", stillbirth" if any(x.get("outcome") == "stillbirth" for x in pl.births) else "") + ")"
+        why = _babies(pl.births)
         it.state = window_state(pl.now, born, closes, late)
         it.reason = {
             "due": f"{why}: give {pp['dose_iu']} IU ({calc.iu_to_ug(pp['dose_iu']):g} µg) by {fmt(closes, tz)}",
@@ -79,7 +79,7 @@ def birth_items(pl: Planner) -> None:
                      [b["id"]])
         elif it.state == "missed":
             pl.alert(AlertCode.POSTPARTUM_DOSE_MISSED, "danger", "postpartum anti-D missed: " + it.reason
-                     + "; tell the clinician and screen for antibodies at 6 months", src, [b["id"]])
+                     + "; tell the clinician: " + carried.follow_up(pl, born, "the birth"), src, [b["id"]])
     # the FMH test after birth
     if pp["fmh_test_required"] and it.state != "not-needed" and not stop:
         fit = pl.add(ItemCode.POSTPARTUM_FMH, "FMH test after birth", "due",
@@ -90,6 +90,28 @@ def birth_items(pl: Planner) -> None:
         tests = [f for f in fmhs if f.get("covers_id") in ids] or \
                 [f for f in fmhs if not f.get("covers_id") and parse_utc(f["sampled_at"]) >= born]
         fmh_test_done(pl, fit, tests, closes, late, born)
+
+
+def _babies(births: list) -> str:
+    """The babies' RhD as recorded, in words that say what is known (twins may differ)."""
+    rhds = [x.get("baby_rhd") for x in births]
+    still = ", stillbirth" if any(x.get("outcome") == "stillbirth" for x in births) else ""
+    if len(rhds) == 1:
+        return ("the baby is RhD positive" if rhds[0] == "positive" else
+                f"the baby's RhD group is not known (not tested{still})")
+    pos, neg = rhds.count("positive"), rhds.count("negative")
+    untyped = len(rhds) - pos - neg
+    n = len(rhds)
+    if pos == n:
+        return f"all {n} babies are RhD positive"
+    parts = [f"{pos} of the {n} babies is RhD positive" if pos == 1 else f"{pos} of the {n} babies are RhD positive"
+             if pos else "",
+             f"{neg} RhD negative" if neg else "",
+             f"{untyped} not tested{still}" if untyped else ""]
+    text = ", ".join(p for p in parts if p)
+    if pos:
+        return text
+    return f"no baby is known to be RhD positive ({text}): the RhD group of {untyped} of the {n} is not known"
 
 
 def _before_birth(pl: Planner) -> None:

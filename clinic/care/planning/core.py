@@ -1,8 +1,9 @@
 """The planning core: the history read once, the facts drawn from it, and the planner state.
 
-``History`` reads stored record dicts (schema.py), skips voided ones and ones dated after
-``now`` (a plan is "as of now") and sorts the rest by (time, id), so the order given never
-matters. ``Planner`` holds what every rule section reads (dating, RhD status, doses,
+``History`` reads stored record dicts (schema.py), skips voided ones and sorts the rest by
+(time, id), so the order given never matters. An entry dated after ``now`` is kept and counted
+(a dose recorded is a dose given, whatever this computer's clock says) and named in a clock
+warning (``History.clock_alerts``). ``Planner`` holds what every rule section reads (dating, RhD status, doses,
 antibodies, fetal RhD, births) and what they write (items and alerts, in order). The rule
 sections are the other modules of this package; each is a function of a ``Planner``.
 """
@@ -15,14 +16,15 @@ from typing import Any, Iterable, TypedDict
 from clinic.care import codes
 from clinic.care.dating import Dating
 from clinic.care.errors import CareInputError
-from clinic.care.model import Alert, CareContext, PlanItem
+from clinic.care.model import Alert, CareContext, EarlierPregnancy, MissedDose, PlanItem
 from clinic.care.protocol import Profile
 from clinic.records.schema import KINDS
 from clinic.records.values import parse_utc
 
 Record = dict[str, Any]
 
-# A record dated a little after ``now`` still counts (clocks of phones and laptops differ).
+# A record dated a little after ``now`` is no sign of a wrong clock (clocks of phones and
+# laptops differ by minutes).
 SKEW = timedelta(minutes=10)
 OPEN_STATES = codes.OPEN_STATES
 # The upper GA the event rules are defined for (profile events.bands cover 0+0 to 44+0).
@@ -91,7 +93,11 @@ class History:
 
     def __init__(self, entries: Iterable[Any], now: datetime, tz: tzinfo):
         self.tz = tz
+        self.now = now
         rows: list[tuple[datetime, str, Record]] = []
+        # Entries dated after now: kept and counted, never skipped. Skipping them when this
+        # computer's clock runs behind would show a dose already given as still to give.
+        self.ahead: list[Record] = []
         for e in entries:
             if not isinstance(e, dict):
                 raise CareInputError("entries", f"each entry must be a stored record (a dict), not {type(e).__name__}")
@@ -100,7 +106,7 @@ class History:
             _check_required(e)
             t = self.when(e)
             if t is not None and t > now + SKEW:
-                continue  # not yet happened as of ``now``
+                self.ahead.append(e)
             rows.append((t or _created(e), str(e.get("id", "")), e))
         rows.sort(key=lambda r: (r[0], r[1]))
         self.by_kind: dict[str, list[Record]] = {}
@@ -120,6 +126,21 @@ class History:
 
     def of(self, kind: str) -> list[Record]:
         return self.by_kind.get(kind, [])
+
+    def clock_alerts(self) -> list[Alert]:
+        """A warning naming the entries dated after now (they are counted all the same)."""
+        if not self.ahead:
+            return []
+        ahead = sorted(self.ahead, key=lambda e: (self.time[str(e.get("id", ""))], str(e.get("id", ""))))
+        latest = self.time[str(ahead[-1].get("id", ""))]
+        return [new_alert(
+            codes.AlertCode.CLOCK_BEHIND, "warning",
+            f"{len(self.ahead)} entr{'y is' if len(self.ahead) == 1 else 'ies are'} dated after now (the latest "
+            f"{fmt(latest, self.tz)}, this computer's clock says {fmt(self.now, self.tz)}): this computer's clock "
+            f"may be behind, or the time was entered wrongly. They are counted as recorded; check the clock "
+            f"and the entries before giving anything they cover.",
+            "rhledger: a recorded entry counts whatever the clock says",
+            [str(e.get("id")) for e in ahead])]
 
 
 # ---- facts drawn from the history ------------------------------------------------------------
@@ -163,6 +184,10 @@ class Antibodies:
     immune_id: str | None = None
     surveillance: bool = False
     findings: list[dict[str, Any]] = field(default_factory=list)
+    # Positive screen id -> what it leaves unidentified (no antibody named, or one of unknown
+    # significance), in words; and the screens whose anti-D is neither passive nor immune yet.
+    unidentified: dict[str, str] = field(default_factory=dict)
+    undetermined: list[str] = field(default_factory=list)
 
 
 @dataclass(frozen=True)
@@ -200,6 +225,9 @@ class Planner:
     unassigned: list[Dose] = field(default_factory=list)
     # Assignment key -> the IU an FMH result asks for in all (more than the standard dose).
     fmh_need: dict[str, int] = field(default_factory=dict)
+    # The woman's earlier pregnancies (plan_pregnancy's ``earlier=``) and this one's missed doses.
+    earlier: tuple[EarlierPregnancy, ...] = ()
+    missed: list[MissedDose] = field(default_factory=list)
     births: list[Record] = field(init=False)
     birth: Record | None = field(init=False)
     born_at: datetime | None = field(init=False)

@@ -10,6 +10,7 @@ from importlib import resources
 from clinic.care import calc, codes
 from clinic.care.codes import AlertCode
 from clinic.care.errors import CareInputError
+from clinic.care.planning import carried
 from clinic.care.planning.core import (
     GA_RULES_MAX_DAYS,
     OPEN_STATES,
@@ -48,7 +49,8 @@ def _event(pl: Planner, e: Record) -> None:
     ga = pl.ga_of(e, t)
     try:
         ed = calc.event_dose(e["event_kind"], max(0, min(ga, GA_RULES_MAX_DAYS)), p, products=pl.ctx.products,
-                             ongoing=bool(e.get("ongoing")))
+                             ongoing=bool(e.get("ongoing")), bleeding_heavy=e.get("bleeding_heavy"),
+                             bleeding_repeated=e.get("bleeding_repeated"), abdominal_pain=e.get("abdominal_pain"))
     except CareInputError as err:
         raise CareInputError(f"event {e['id']}.{err.field}", err.errors[err.field]) from None
     src, ranges = event_ga_ranges()
@@ -79,16 +81,27 @@ def _event(pl: Planner, e: Record) -> None:
         it.reason = "cell-free fetal RHD negative: anti-D for events not needed"
     elif not ed.needed:
         it.state, it.dose_iu = "not-needed", None
-    elif ed.conditional and not e.get("ongoing"):
+        if ed.conditional and e.get("ongoing"):
+            _early_bleeding_alert(pl, e, words, ga, ed, "bleeding is recorded as continuing: review her; if it "
+                                  f"becomes {calc.BLEEDING_CONDITION}, amend the event and")
+    elif ed.conditional and ed.condition_met is None and not e.get("ongoing"):
         it.state, it.dose_iu = "not-needed", None
-        it.reason = (f"a single bleed before 12 weeks needs no anti-D unless it is heavy, repeated or with "
-                     f"abdominal pain; if so, give {ed.dose_iu if ed.dose_iu else ''} IU and mark the event as "
-                     f"continuing")
-        pl.alert(AlertCode.EARLY_BLEEDING_CHECK, "warning",
-                 f"bleeding at {format_ga(ga)}: a clinician judges whether it was heavy, repeated or with "
-                 f"abdominal pain; if so anti-D {p.band_for(ga).dose_iu} IU within "
-                 f"{ev['deadline_hours']:g} h is due", ed.source, [e["id"]])
+        missing = calc.unrecorded_bleeding_facts(e)
+        it.reason = (f"{words} at {format_ga(ga)}: whether the bleeding is {' / '.join(missing)} is not recorded; "
+                     f"without any of these no anti-D is needed before {format_ga(p.band_for(ga).to_ga_days + 1)} "
+                     f"(ask, and amend the event)")
+        cont = " Bleeding is recorded as continuing." if e.get("ongoing") else ""
+        _early_bleeding_alert(pl, e, words, ga, ed, f"the record does not say whether the bleeding is "
+                              f"{' / '.join(missing)}.{cont} A clinician asks and amends the event; if any,")
     else:
+        if ed.conditional and ed.condition_met is None:
+            # Bleeding that continues, with heavy / repeated / pain not recorded (entries made before
+            # those facts were asked read this way): when in doubt the dose stays due, never dropped.
+            missing = calc.unrecorded_bleeding_facts(e)
+            it.reason += (f"; bleeding continues and whether it is {' / '.join(missing)} is not recorded: "
+                          f"the dose stays due until the event says otherwise")
+            _early_bleeding_alert(pl, e, words, ga, ed, f"bleeding continues and the record does not say "
+                                  f"whether it is {' / '.join(missing)}; a clinician asks and amends the event;")
         it.state = window_state(pl.now, t, closes, late_until)
         if it.state == "overdue":
             it.reason = (f"the {ev['deadline_hours']:g}-hour deadline passed at {fmt(closes, tz)}: give "
@@ -100,7 +113,7 @@ def _event(pl: Planner, e: Record) -> None:
             it.reason = "no anti-D within the deadline or the late window"
             pl.alert(AlertCode.EVENT_DOSE_MISSED, "danger",
                      f"no anti-D was given after the {words} of {fmt(t, tz)}: the late window closed "
-                     f"{fmt(late_until, tz)}; tell the clinician, screen for antibodies later",
+                     f"{fmt(late_until, tz)}; tell the clinician: {carried.follow_up(pl, t, 'the ' + words)}",
                      ed.source, [e["id"]])
         elif pl.rhd["managed_as"] in ("untyped", "retest"):
             it.reason += "; type the woman now — give only if RhD negative"
@@ -110,6 +123,15 @@ def _event(pl: Planner, e: Record) -> None:
         _event_fmh_test(pl, e, words, ga, t, closes, late_until)
     if ed.repeat_every_days and given and it.state == "done":
         _repeat_dose(pl, e, words, given, ed.repeat_every_days, ed.repeat_dose_iu, ed.source, hours, late)
+
+
+def _early_bleeding_alert(pl: Planner, e: Record, words: str, ga: int, ed: calc.EventDose, what: str) -> None:
+    """Bleeding of a conditional kind at this GA: a clinician judges it (BSH 2014: anti-D only for
+    bleeding that is heavy, repeated or with abdominal pain)."""
+    ev = pl.p.get("events")
+    pl.alert(AlertCode.EARLY_BLEEDING_CHECK, "warning",
+             f"{words} at {format_ga(ga)}: {what} anti-D {pl.p.band_for(ga).dose_iu} IU within "
+             f"{ev['deadline_hours']:g} h is due", ed.source, [e["id"]])
 
 
 def _event_fmh_test(pl: Planner, e: Record, words: str, ga: int, t: datetime, closes: datetime,

@@ -8,7 +8,7 @@ from clinic.care import calc, codes
 from clinic.care.codes import AlertCode, ItemCode
 from clinic.care.errors import CareInputError
 from clinic.care.model import PlanItem
-from clinic.care.planning.core import Planner, Record, window_state
+from clinic.care.planning.core import OPEN_STATES, Planner, Record, window_state
 from clinic.care.planning.doses import POSTPARTUM, event_key
 from clinic.records.values import parse_utc
 
@@ -75,9 +75,9 @@ def large_fmh_doses(pl: Planner) -> None:
         if base_item is None or base_item.state == "not-needed":
             continue
         std = base_item.dose_iu or 0
-        if res["dose_iu"] <= std:
+        total = res["dose_iu"]
+        if total <= std:
             continue
-        given = sum(d.iu for d in pl.assigned.get(key, []))
         code = ItemCode.POSTPARTUM_FMH_DOSE if is_birth else codes.event_fmh_dose_code(target)
         if pl.item(code):
             continue
@@ -85,21 +85,32 @@ def large_fmh_doses(pl: Planner) -> None:
         sec = "postpartum" if is_birth else "events"
         closes = t0 + timedelta(hours=p.get(f"{sec}.deadline_hours"))
         late = t0 + timedelta(days=p.get(f"{sec}.late_window_days"))
-        more = max(res["dose_iu"] - given, 0)
-        pl.fmh_need[key] = max(pl.fmh_need.get(key, 0), res["dose_iu"])
         closes, late = max(closes, ft), max(late, ft)
+        # The published rule gives the TOTAL for this bleed, the standard dose included (AABB vial
+        # rule / ACOG PB 181; BSH 2014: 500 IU covers 4 mL fetal red cells). What is still asked
+        # is that total less what was given for the bleed and less the standard dose still
+        # planned. Where bleeding continues, later doses after the late window are the repeats.
+        repeats = None if is_birth else pl.item(codes.event_repeat_code(target))
+        given_doses = [d for i, d in enumerate(pl.assigned.get(key, []))
+                       if i == 0 or repeats is None or d.at <= late]
+        given = sum(d.iu for d in given_doses)
+        planned = std if base_item.state in OPEN_STATES else 0
+        more = max(total - given - planned, 0)
+        pl.fmh_need[key] = max(pl.fmh_need.get(key, 0), total)
+        parts = [f"{given} IU given so far"] + ([f"the standard {planned} IU still to give"] if planned else [])
         it = pl.add(code, "Further anti-D for a large fetomaternal haemorrhage", "due",
-                    (f"FMH {res['fetal_red_cells_ml']:g} mL fetal red cells ({res['working']}): "
-                     f"{res['dose_iu']} IU needed in all, {given} IU given so far"), res["source"],
-                    due=ft, opens=ft, closes=closes, late_until=late, dose_iu=more or res["dose_iu"],
-                    related_id=target)
-        if more == 0:
-            pl.mark_done(it, pl.assigned.get(key, [])[-1], closes)
-            it.dose_iu = res["dose_iu"]
+                    (f"FMH {res['fetal_red_cells_ml']:g} mL fetal red cells ({res['working']}): {total} IU needed in "
+                     f"all for this bleed, the standard dose included; {' and '.join(parts)}: "
+                     + (f"{more} IU more" if more else "nothing more")), res["source"],
+                    due=ft, opens=ft, closes=closes, late_until=late, dose_iu=more or total, related_id=target)
+        if more == 0 and given_doses:
+            pl.mark_done(it, given_doses[-1], closes)
+            it.dose_iu = total
         else:
             it.state = window_state(pl.now, ft, closes, late)
             for w in res["warnings"]:
                 pl.alert(AlertCode.FMH_LARGE_IM, "warning", w, res["source"], [f["id"]])
             pl.alert(AlertCode.FMH_LARGE, "danger",
-                     f"large fetomaternal haemorrhage: {more} IU more anti-D needed; repeat the FMH test "
-                     f"after giving it (48 h IM / 24-48 h IV per local protocol)", res["source"], [f["id"]])
+                     f"large fetomaternal haemorrhage: {total} IU needed in all for this bleed; {more} IU more than "
+                     f"{' and '.join(parts)}; repeat the FMH test after giving it (48 h IM / 24-48 h IV per local "
+                     f"protocol)", res["source"], [f["id"]])

@@ -34,13 +34,15 @@ def rhd_status(typings: list[Record], profile: Profile, alerts: list[Alert]) -> 
         major = wt.split(".")[0] if wt else ""
         if major and major in profile.get("rhd.weak_d_types_managed_positive"):
             _manage(out, "positive", f"weak D type {wt}: managed as RhD positive (no anti-D)")
+        elif wt:
+            listed = ", ".join(profile.get("rhd.weak_d_types_managed_positive")) or "none"
+            _manage(out, "negative", f"weak D type {wt} (genotyped): managed as RhD negative, as this type "
+                                     f"is not among those the profile manages as RhD positive ({listed})")
         else:
-            what = f"weak D type {wt}" if wt else "weak D, type not known"
-            _manage(out, "negative", f"{what}: managed as RhD negative until genotyped")
-            if not wt:
-                alerts.append(Alert(AlertCode.WEAK_D_GENOTYPE, "info",
-                                    "weak D without a type: send for RHD genotyping; managed as RhD negative meanwhile",
-                                    src, [t["id"]]))
+            _manage(out, "negative", "weak D, type not known: managed as RhD negative until genotyped")
+            alerts.append(Alert(AlertCode.WEAK_D_GENOTYPE, "info",
+                                "weak D without a type: send for RHD genotyping; managed as RhD negative meanwhile",
+                                src, [t["id"]]))
     elif r == "partial-d":
         cat = t.get("partial_d_category")
         _manage(out, "negative", f"partial D{(' ' + cat) if cat else ''}: managed as RhD negative (can make anti-D)")

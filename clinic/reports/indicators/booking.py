@@ -7,7 +7,7 @@ from datetime import tzinfo
 from clinic.care.codes import ItemCode
 from clinic.reports.indicators.registry import S_BOOK, S_NEG, Hit, booked_in, booking_due, indicator
 from clinic.reports.month import Month
-from clinic.reports.pregnancy_case import Case, as_dt, attr, done, eligible
+from clinic.reports.pregnancy_case import Case, as_dt, attr, done, planned
 
 
 @indicator("bookings", S_BOOK, "Bookings",
@@ -61,12 +61,13 @@ def _neg_screen(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
 
 @indicator("neg_partner_typed", S_NEG, "Partner typed",
            "Of the RhD-negative women booked in the month for whom the care engine plans partner "
-           "typing (its 'partner-typing' item, not 'not needed'), those whose item the engine counts "
-           "as done (the baby's father's RhD recorded as positive or negative).",
+           "typing (its 'partner-typing' item, not 'not needed'; one closed as 'no longer needed' was "
+           "planned and counts as not typed), those whose item the engine counts as done (the baby's "
+           "father's RhD recorded as positive or negative).",
            "partner RhD known", "RhD-negative women booked in the month (partner typing planned)")
 def _partner(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     it = case.item(ItemCode.PARTNER_TYPING)
-    if not _neg_booked(case, month) or not eligible(it):
+    if not _neg_booked(case, month) or not planned(it):
         return
     ok = done(it)
     yield Hit(case, ok, "partner-typed" if ok else "partner-not-typed", None, ItemCode.PARTNER_TYPING,
@@ -76,12 +77,12 @@ def _partner(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
 @indicator("neg_fetal_rhd", S_NEG, "Fetal RHD tested (where used)",
            "Of the RhD-negative women booked in the month for whom the care engine plans a cell-free "
            "fetal RHD test (its 'fetal-rhd-test' item, not 'not needed': the profile uses targeted "
-           "prophylaxis), those whose test the engine counts as done. Empty where the profile does "
-           "not use the test.",
+           "prophylaxis; one closed as 'no longer needed' was planned and counts as not tested), those "
+           "whose test the engine counts as done. Empty where the profile does not use the test.",
            "fetal RHD result recorded", "RhD-negative women booked in the month (fetal RHD test planned)")
 def _fetal(case: Case, month: Month, tz: tzinfo) -> Iterator[Hit]:
     it = case.item(ItemCode.FETAL_RHD_TEST)
-    if not _neg_booked(case, month) or not eligible(it):
+    if not _neg_booked(case, month) or not planned(it):
         return
     ok = done(it)
     yield Hit(case, ok, "tested" if ok else "not-tested", None, ItemCode.FETAL_RHD_TEST, booking_due(case, tz),

@@ -99,7 +99,9 @@
     var tokenP = csrfToken ? Promise.resolve(csrfToken) : metaGet("csrf");
     return tokenP.then(function (token) {
       var headers = { "Content-Type": "application/json", Accept: "application/json",
-                      "X-CSRF-Token": token || "", "X-Outbox-Key": entry.key };
+                      "X-CSRF-Token": token || "", "X-Outbox-Key": entry.key,
+                      // The phone's clock: the laptop warns when its own runs behind it.
+                      "X-Client-Time": new Date().toISOString() };
       return fetchWithTimeout(entry.url, {
         method: entry.method, headers: headers, body: JSON.stringify(entry.body),
         credentials: "same-origin", cache: "no-store", redirect: "manual"
@@ -178,7 +180,8 @@
   /* Who is signed in on this device now, and the session's security token:
    * {user, csrf}; null when nobody is signed in; rejects when the laptop is not reachable. */
   function session() {
-    return fetchWithTimeout("/api/v1/session", { method: "GET", headers: { Accept: "application/json" },
+    return fetchWithTimeout("/api/v1/session", { method: "GET",
+                                                 headers: { Accept: "application/json", "X-Client-Time": new Date().toISOString() },
       credentials: "same-origin", cache: "no-store", redirect: "manual" }, REQUEST_TIMEOUT_MS)
       .then(function (res) {
         if (UNREACHABLE_STATUS[res.status]) { throw new Error("the laptop could not be reached"); }
